@@ -1,0 +1,2 @@
+// main.cpp — the tessera program (placeholder until subcommands land).
+int main() { return 0; }
