@@ -27,6 +27,8 @@ void AtomicFile::write(const void* data, std::size_t n) {
     throw Error("cannot write '" + path_ + "': " + std::strerror(errno));
 }
 
+int AtomicFile::fd() const { return ::fileno(f_); }
+
 void AtomicFile::commit() {
   if (std::fflush(f_) != 0 || ::fsync(::fileno(f_)) != 0)
     throw Error("cannot write '" + path_ + "': " + std::strerror(errno));

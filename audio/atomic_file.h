@@ -21,6 +21,7 @@ class AtomicFile {
   void write(const std::string& s) { write(s.data(), s.size()); }
   void commit();                                 // flush, fsync, rename; throws on failure
   const std::string& temp_path() const { return temp_; }
+  int fd() const;   // the temporary file's descriptor, for libraries that write by fd
   const std::string& path() const { return path_; }
 
  private:

@@ -1,2 +1,45 @@
-// main.cpp — the tessera program (placeholder until subcommands land).
-int main() { return 0; }
+// main.cpp — the tessera program: parses arguments, runs one subcommand, and turns any
+// error into one line on stderr and a non-zero exit.
+#include <cstdio>
+#include <exception>
+#include <map>
+
+#include <CLI/CLI.hpp>
+
+#include "audio/error.h"
+#include "cli/command.h"
+
+int main(int argc, char** argv) {
+  using namespace tessera::cli;
+  CLI::App app{"tessera: speech to discrete codes and back, on the CPU"};
+  app.set_version_flag("--version", std::string("tessera ") + TESSERA_VERSION);
+  app.require_subcommand(1);
+  std::map<CLI::App*, Run> runs;
+  auto add = [&](Run (*reg)(CLI::App&)) {
+    const auto before = app.get_subcommands({});
+    Run r = reg(app);
+    for (CLI::App* sub : app.get_subcommands({}))
+      if (std::find(before.begin(), before.end(), sub) == before.end()) runs[sub] = std::move(r);
+  };
+  add(register_resynth);
+
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    return app.exit(e);  // prints help/version (exit 0) or a usage error (exit 2... per CLI11)
+  }
+  try {
+    for (auto& [sub, run] : runs)
+      if (sub->parsed()) return run();
+  } catch (const tessera::Error& e) {
+    std::fprintf(stderr, "error: %s\n", e.what());
+    return 1;
+  } catch (const std::bad_alloc&) {
+    std::fprintf(stderr, "error: out of memory\n");
+    return 1;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "error: %s\n", e.what());
+    return 1;
+  }
+  return 1;
+}

@@ -1,0 +1,21 @@
+// output_path.h — shared checks before a command writes anything, and level warnings.
+#pragma once
+#include <string>
+#include <vector>
+
+#include "audio/audio_config.h"
+#include "audio/audio_io.h"
+#include "cli/command.h"
+
+namespace tessera::cli {
+
+// Refuses an output that is one of the inputs or whose folder does not exist.
+void check_output_path(const std::string& output, const std::vector<std::string>& inputs);
+
+// Warns on stderr when the output was peak-limited or would have clipped.
+void warn_about_level(const audio::SaveReport& rep, const std::string& path);
+
+// The audio settings of --config/--set (defaults where absent), validated.
+audio::AudioConfig load_audio_settings(const ConfigArgs& args);
+
+}  // namespace tessera::cli
