@@ -1,5 +1,6 @@
 // main.cpp — the tessera program: parses arguments, runs one subcommand, and turns any
 // error into one line on stderr and a non-zero exit.
+#include <algorithm>
 #include <cstdio>
 #include <exception>
 #include <map>
@@ -26,7 +27,9 @@ int main(int argc, char** argv) {
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
-    return app.exit(e);  // prints help/version (exit 0) or a usage error (exit 2... per CLI11)
+    // Help and version exit 0; every usage error exits 2 (CLI11's own codes are ≥ 100).
+    const int code = app.exit(e);
+    return code == 0 ? 0 : 2;
   }
   try {
     for (auto& [sub, run] : runs)

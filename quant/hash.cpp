@@ -56,6 +56,7 @@ void Sha256::compress(const std::uint8_t* p) {
 }
 
 void Sha256::update(const void* data, std::size_t n) {
+  if (n == 0) return;
   auto p = static_cast<const std::uint8_t*>(data);
   total_ += n;
   if (buf_len_ > 0) {   // top up a partial block first

@@ -15,6 +15,7 @@
 #include <cstdint>
 #include <cstring>
 #include <map>
+#include <set>
 #include <memory>
 #include <span>
 #include <string>
@@ -25,7 +26,10 @@ namespace tessera::quant {
 
 static_assert(std::endian::native == std::endian::little, "tensor data is little-endian");
 
-enum class Dtype : std::uint8_t { boolean, u8, i8, u16, i16, f16, bf16, u32, i32, f32, u64, i64, f64 };
+// All the byte-sized element types of the format. Typed access (get<T>) covers the integer
+// and IEEE types; BOOL, F16, BF16 and the 8-bit floats are reachable as raw bytes only.
+enum class Dtype : std::uint8_t {
+  boolean, u8, i8, f8_e5m2, f8_e4m3, u16, i16, f16, bf16, u32, i32, f32, u64, i64, f64 };
 std::string_view dtype_name(Dtype d);   // the format's spelling: "F32", "I64", "BOOL", ...
 std::size_t dtype_size(Dtype d);        // bytes per element
 
@@ -76,6 +80,7 @@ class SafetensorsWriter {
  private:
   std::vector<TensorInfo> tensors_;
   std::vector<const void*> data_;
+  std::set<std::string, std::less<>> names_;
   std::map<std::string, std::string> metadata_;
   std::uint64_t data_size_ = 0;
 };
@@ -141,6 +146,6 @@ class SafetensorsReader {
 // order, its name, dtype name and shape (each followed by a 0 byte) and then its bytes.
 // Metadata are left out, so the id can be stored in the metadata it identifies.
 std::string tensor_content_id(std::span<const TensorInfo> tensors,
-                              std::span<const std::byte* const> data);
+                              std::span<const void* const> data);
 
 }  // namespace tessera::quant

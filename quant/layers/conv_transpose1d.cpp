@@ -1,0 +1,99 @@
+// conv_transpose1d.cpp — ConvTranspose1d by output phases: per phase and tap one GEMM.
+// B batch, C channels, T frames, k taps, s stride, p padding.
+#include "quant/layers/conv_transpose1d.h"
+
+#include <algorithm>
+#include <cassert>
+
+#include "audio/error.h"
+#include "quant/layers/gemm.h"
+#include "quant/layers/init.h"
+
+namespace tessera::quant {
+
+using namespace gemm;
+
+namespace {
+
+// Floor division for a possibly negative numerator and a positive divisor.
+int floor_div(int a, int b) { return a >= 0 ? a / b : -((-a + b - 1) / b); }
+
+// Calls f(r, j, q, n) for every phase r and tap j of that phase: output frames s·m + r,
+// m ∈ [0, n), receive w_j · x[m + q].
+template <class F>
+void for_each_tap(const ConvTranspose1dShape& s, int t_out, F&& f) {
+  for (int r = 0; r < s.stride && r < t_out; ++r) {
+    const int n = (t_out - r + s.stride - 1) / s.stride;
+    for (int j = 0; j < s.k; ++j) {
+      const int num = r + s.pad - j;
+      if (((num % s.stride) + s.stride) % s.stride != 0) continue;
+      f(r, j, num / s.stride, n);
+    }
+  }
+}
+
+}  // namespace
+
+// Phase r reads input frames m + q, q = (r + p − j)/s, m < n_r: at least −⌈(k − 1 − p)/s⌉
+// and at most T_in − 1 + ⌊(k − 1 − p + output_padding)/s⌋.
+int ConvTranspose1dShape::margin() const {
+  const int left = -floor_div(pad - (k - 1), stride);
+  const int right = floor_div(k - 1 - pad + output_padding, stride);
+  return std::max({0, left, right});
+}
+
+ConvTranspose1d::ConvTranspose1d(ParamSlab& slab, const std::string& name, const ConvTranspose1dShape& shape)
+    : s(shape) {
+  if (s.c_in < 1 || s.c_out < 1 || s.k < 1 || s.stride < 1 || s.pad < 0 || s.output_padding < 0 ||
+      s.output_padding >= s.stride)
+    throw Error("conv_transpose1d '" + name + "': invalid shape (k " + std::to_string(s.k) + ", stride " +
+                std::to_string(s.stride) + ", pad " + std::to_string(s.pad) + ", output_padding " +
+                std::to_string(s.output_padding) + ")");
+  w = slab.add(name + ".w", {s.c_out, s.k, s.c_in});
+  b = slab.add(name + ".b", {s.c_out});
+}
+
+void ConvTranspose1d::init(ParamSlab& slab, std::mt19937_64& rng) const {
+  const double bound = torch_default_bound(s.c_out * s.k);
+  fill_uniform(slab.value(w), bound, rng);
+  fill_uniform(slab.value(b), bound, rng);
+}
+
+void ConvTranspose1d::forward(const SeqView& y, const CSeqView& x, const ParamView& p) const {
+  assert(x.C == s.c_in && y.C == s.c_out && x.B == y.B && y.T == s.out_frames(x.T));
+  assert(x.margin >= s.margin());
+  const int k = s.k, ci = s.c_in, co = s.c_out, st = s.stride;
+  const float* wp = p.p(w);
+  const Eigen::Map<const Eigen::VectorXf> bias(p.p(b), co);
+  for (int bi = 0; bi < x.B; ++bi) {
+    frames(y, bi, 0, co, y.T).colwise() = bias;
+    for_each_tap(s, y.T, [&](int r, int j, int q, int n) {
+      MapMat Y = frames(y, bi, r, co, n, st);
+      Y.noalias() += tap(wp, co, k, ci, j) * frames(x, bi, q, ci, n);
+    });
+  }
+}
+
+void ConvTranspose1d::backward(const SeqView* dx, const CSeqView& dy, const CSeqView& x, const ParamView& p) const {
+  assert(x.C == s.c_in && dy.C == s.c_out && x.B == dy.B && dy.T == s.out_frames(x.T));
+  assert(x.margin >= s.margin());
+  assert(!dx || (dx->C == s.c_in && dx->B == x.B && dx->T == x.T && dx->margin >= s.margin()));
+  const int k = s.k, ci = s.c_in, co = s.c_out, st = s.stride;
+  const float* wp = p.p(w);
+  float* dwp = p.g(w);
+  Eigen::Map<Eigen::VectorXf> db(p.g(b), co);
+  for (int bi = 0; bi < x.B; ++bi) {
+    db += frames(dy, bi, 0, co, dy.T).rowwise().sum();
+    for_each_tap(s, dy.T, [&](int r, int j, int q, int n) {
+      const CMapMat dY = frames(dy, bi, r, co, n, st);
+      MapRowMat dWj = tap(dwp, co, k, ci, j);
+      dWj.noalias() += dY * frames(x, bi, q, ci, n).transpose();
+      if (dx) {
+        MapMat dX = frames(*dx, bi, q, ci, n);
+        dX.noalias() += tap(wp, co, k, ci, j).transpose() * dY;
+      }
+    });
+  }
+}
+
+}  // namespace tessera::quant

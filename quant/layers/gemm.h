@@ -1,0 +1,37 @@
+// gemm.h — Eigen maps that turn frame ranges of a SeqView and weight blocks into GEMM operands.
+// C channels, T frames, k taps. Every product here is `dst.noalias() += a * b`: Eigen's
+// `=` would clear dst in an extra pass, so destinations are pre-set (bias) or accumulate.
+#pragma once
+#include <Eigen/Core>
+
+#include "quant/tensor.h"
+
+namespace tessera::quant::gemm {
+
+using Mat = Eigen::Matrix<float, Eigen::Dynamic, Eigen::Dynamic>;
+using RowMat = Eigen::Matrix<float, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
+using Stride = Eigen::OuterStride<>;
+using MapMat = Eigen::Map<Mat, 0, Stride>;
+using CMapMat = Eigen::Map<const Mat, 0, Stride>;
+using MapRowMat = Eigen::Map<RowMat, 0, Stride>;
+using CMapRowMat = Eigen::Map<const RowMat, 0, Stride>;
+
+// `rows` values starting at frame t0 of item b, `cols` columns that start `step` frames
+// apart: column j is frames t0 + j·step ... (rows may span several consecutive frames,
+// so columns may overlap — fine for a GEMM operand that is only read).
+inline CMapMat frames(const CSeqView& v, int b, int t0, long rows, long cols, long step = 1) {
+  return {v.frame(b, t0), rows, cols, Stride(step * v.C)};
+}
+inline MapMat frames(const SeqView& v, int b, int t0, long rows, long cols, long step = 1) {
+  return {v.frame(b, t0), rows, cols, Stride(step * v.C)};
+}
+
+// Block j (C_out × C_in) of a weight stored row-major as (C_out, k, C_in).
+inline CMapRowMat tap(const float* w, int c_out, int k, int c_in, int j) {
+  return {w + long(j) * c_in, c_out, c_in, Stride(long(k) * c_in)};
+}
+inline MapRowMat tap(float* w, int c_out, int k, int c_in, int j) {
+  return {w + long(j) * c_in, c_out, c_in, Stride(long(k) * c_in)};
+}
+
+}  // namespace tessera::quant::gemm

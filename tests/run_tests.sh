@@ -1,0 +1,9 @@
+#!/usr/bin/env bash
+# README command 2: install what is needed, build, and run the whole test suite.
+# Usage: bash tests/run_tests.sh        (from the project root; exits non-zero on any failure)
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash .ci/install-deps
+cmake -S . -B build -DCMAKE_BUILD_TYPE=Release >/dev/null
+cmake --build build -j"$(nproc)"
+ctest --test-dir build --output-on-failure -j"$(nproc)"
