@@ -12,12 +12,61 @@
 
 namespace tessera::audio {
 
+namespace {
+// The inner loops over bins work on interleaved re/im floats through non-aliasing pointers so
+// that the compiler vectorises them; square roots go through Eigen (std::sqrt's errno path
+// would block vectorisation). A bin whose phase is undefined (zero) gets phase 0.
+
+// y = A·P/|P| with P = C − β·prev; prev ← C. p and s hold F scratch values each (2F for p).
+void momentum_phase(const std::complex<float>* c, std::complex<float>* prev, const float* target,
+                    float beta, int F, float* p, float* s, std::complex<float>* y) {
+  const float* __restrict cr = reinterpret_cast<const float*>(c);
+  float* __restrict pr = reinterpret_cast<float*>(prev);
+  float* __restrict pp = p;
+  float* __restrict n2 = s;
+  for (int k = 0; k < F; ++k) {
+    const float p0 = cr[2 * k] - beta * pr[2 * k], p1 = cr[2 * k + 1] - beta * pr[2 * k + 1];
+    pp[2 * k] = p0;
+    pp[2 * k + 1] = p1;
+    n2[k] = p0 * p0 + p1 * p1;
+  }
+  std::copy(cr, cr + 2 * F, pr);
+  Eigen::Map<Eigen::ArrayXf> scale(s, F);
+  scale = Eigen::Map<const Eigen::ArrayXf>(target, F) / scale.max(1e-30f).sqrt();
+  float* __restrict yr = reinterpret_cast<float*>(y);
+  const float* __restrict a = target;
+  const float* __restrict sc = s;
+  for (int k = 0; k < F; ++k) {
+    const bool zero = pp[2 * k] == 0.0f && pp[2 * k + 1] == 0.0f;
+    yr[2 * k] = zero ? a[k] : pp[2 * k] * sc[k];
+    yr[2 * k + 1] = zero ? 0.0f : pp[2 * k + 1] * sc[k];
+  }
+}
+
+// y = A·C/|C| (plain GL), |C| given.
+void keep_phase(const std::complex<float>* c, const float* mag, const float* target, int F,
+                std::complex<float>* y) {
+  const float* __restrict cr = reinterpret_cast<const float*>(c);
+  const float* __restrict m = mag;
+  const float* __restrict a = target;
+  float* __restrict yr = reinterpret_cast<float*>(y);
+  for (int k = 0; k < F; ++k) {
+    const bool zero = !(m[k] > 0.0f);
+    const float s = a[k] / (zero ? 1.0f : m[k]);
+    yr[2 * k] = zero ? a[k] : cr[2 * k] * s;
+    yr[2 * k + 1] = zero ? 0.0f : cr[2 * k + 1] * s;
+  }
+}
+}  // namespace
+
 GriffinLim::GriffinLim(const AudioConfig& cfg)
     : stft_(cfg),
       c_(std::size_t(stft_.n_bins())),
       mag_(std::size_t(stft_.n_bins())),
       target_(std::size_t(stft_.n_bins())),
-      corr_(std::size_t(stft_.n_bins())) {}
+      corr_(std::size_t(stft_.n_bins())),
+      phase_(2 * std::size_t(stft_.n_bins())),
+      scale_(std::size_t(stft_.n_bins())) {}
 
 std::size_t GriffinLim::checked_length(Eigen::Index frames, std::size_t length) const {
   if (frames < 1) throw Error("griffin-lim needs at least one frame");
@@ -94,7 +143,8 @@ std::vector<float> GriffinLim::iterate(const Eigen::MatrixXf& start, const Eigen
     double dist2 = 0.0, target2 = 0.0, mel_err2 = 0.0, mel2 = 0.0;
     for (Eigen::Index t = 0; t < T; ++t) {
       stft_.analyze_frame(padded_.data() + std::size_t(t) * hop, c_.data());  // Cₙ
-      magnitude(c_.data(), c_.size(), mag_.data());
+      // |C| is needed by the mel correction, plain GL's phase and the figures only.
+      if (mel || !use_momentum || stats) magnitude(c_.data(), c_.size(), mag_.data());
       const float* target = start.col(t).data();
       if (mel) {
         // Aₙ = max(|C| + M⁺(mel − M|C|), 0)
@@ -119,23 +169,9 @@ std::vector<float> GriffinLim::iterate(const Eigen::MatrixXf& start, const Eigen
         }
 
       // Momentum and phase: Yₙ = Aₙ·Pₙ/|Pₙ|.
-      std::complex<float>* y = y_.col(t).data();
-      if (use_momentum) {
-        std::complex<float>* prev = c_prev_.col(t).data();
-        for (int k = 0; k < F; ++k) {
-          const std::complex<float> c = c_[std::size_t(k)];
-          const float pr = c.real() - beta * prev[k].real(), pi = c.imag() - beta * prev[k].imag();
-          prev[k] = c;
-          const float n2 = pr * pr + pi * pi;
-          y[k] = n2 > 0.0f ? std::complex<float>(pr, pi) * (target[k] / std::sqrt(n2))
-                           : std::complex<float>(target[k], 0.0f);
-        }
-      } else {
-        for (int k = 0; k < F; ++k) {
-          const float a = mag_[std::size_t(k)];
-          y[k] = a > 0.0f ? c_[std::size_t(k)] * (target[k] / a) : std::complex<float>(target[k], 0.0f);
-        }
-      }
+      if (use_momentum)
+        momentum_phase(c_.data(), c_prev_.col(t).data(), target, beta, F, phase_.data(), scale_.data(), y_.col(t).data());
+      else keep_phase(c_.data(), mag_.data(), target, F, y_.col(t).data());
     }
     if (stats) {
       GriffinLimStep s;

@@ -77,6 +77,7 @@ class GriffinLim {
   std::vector<std::complex<float>> c_;     // F
   std::vector<float> mag_, target_, corr_; // F
   std::vector<float> mel_res_, mel_tmp_;   // M
+  std::vector<float> phase_, scale_;       // 2F, F: momentum scratch
 };
 
 // One-shot fixed-magnitude GL (plain or fast) with the config's momentum and zero phase.

@@ -12,8 +12,8 @@
 //   mel_consistent  A₀, then fast GL re-imposing the mel every iteration (default)
 //   fast            A₀ fixed, fast GL          plain   A₀ fixed, plain GL
 //   nnls            NNLS magnitude fixed, fast GL
-// The start phase is zero: on espeak-ng speech at 16 kHz it measured better than seeded
-// random phase for every variant (figures in the report of the change that added this file).
+// The start phase is zero: on synthesised (espeak-ng) speech at 16 kHz, 32–100 iterations, it
+// gave equal or lower SC and MCD than seeded random phase for every variant.
 #pragma once
 #include <Eigen/Core>
 #include <functional>

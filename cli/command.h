@@ -13,6 +13,8 @@ namespace tessera::cli {
 using Run = std::function<int()>;
 
 Run register_resynth(CLI::App& app);
+Run register_train(CLI::App& app);
+Run register_inspect(CLI::App& app);
 
 // Settings shared by every command that reads an experiment file.
 struct ConfigArgs {

@@ -23,6 +23,8 @@ int main(int argc, char** argv) {
       if (std::find(before.begin(), before.end(), sub) == before.end()) runs[sub] = std::move(r);
   };
   add(register_resynth);
+  add(register_train);
+  add(register_inspect);
 
   try {
     app.parse(argc, argv);

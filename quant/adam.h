@@ -7,6 +7,7 @@
 //   coupled L2 (as torch.optim.Adam's weight_decay): g ← g + λ·θ
 // lr comes from the caller each step (quant/lr_schedule.h), so the decay follows the schedule,
 // as in torch.optim.AdamW. Element-wise math is float; bias corrections are double.
+// N parameters: params, grads, m and v are all flat arrays of length N in the same layout.
 #pragma once
 #include <cstddef>
 #include <cstdint>

@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cassert>
 
+#include "quant/lanes.h"
 #include "quant/layers/elu.h"
 
 namespace tessera::quant {
@@ -171,8 +172,8 @@ void Encoder::forward(const Tensor& x, Tensor& z, const ParamSlab& slab, bool tr
   }
   pool_.run([&](int l) {
     Lane& L = lanes_[std::size_t(l)];
-    L.b0 = B * l / n_lanes;
-    L.nb = B * (l + 1) / n_lanes - L.b0;
+    const LaneItems it = lane_items(B, l, n_lanes);
+    L.b0 = it.b0, L.nb = it.nb;
     if (L.nb == 0) return;
     forward_lane(L, x.view().items(L.b0, L.nb), z.view().items(L.b0, L.nb), p, train);
   });
@@ -186,22 +187,9 @@ void Encoder::backward(const Tensor& dz, ParamSlab& slab) {
   pool_.run([&](int l) {
     Lane& L = lanes_[std::size_t(l)];
     if (L.nb == 0) return;
-    ParamView p = slab.view();
-    if (l > 0) {
-      L.grads.assign(range_.size, 0.0f);
-      p = {slab.params(), L.grads.data(), range_.offset};
-    }
-    backward_lane(L, dz.view().items(L.b0, L.nb), p);
+    backward_lane(L, dz.view().items(L.b0, L.nb), lane_params(slab, range_, l, L.grads));
   });
-  // Add the private gradients in lane order (deterministic), split over the lanes.
-  float* g = slab.grads() + range_.offset;
-  pool_.parallel_for(range_.size, [&](std::size_t i0, std::size_t i1) {
-    for (std::size_t l = 1; l < lanes_.size(); ++l) {
-      if (lanes_[l].nb == 0) continue;
-      const float* src = lanes_[l].grads.data();
-      for (std::size_t i = i0; i < i1; ++i) g[i] += src[i];
-    }
-  });
+  reduce_lane_grads(pool_, slab, range_, lanes_);
 }
 
 }  // namespace tessera::quant

@@ -2,6 +2,7 @@
 // The norm is the L2 norm of all gradients together (Pascanu, Mikolov & Bengio 2013, Alg. 1).
 // Rule of torch.nn.utils.clip_grad_norm_: c = max_norm / (norm + 1e-6); if c < 1, g ← c·g
 // (the 1e-6 guards a zero norm).
+// n: length of the flat gradient slab.
 #pragma once
 #include <cstddef>
 

@@ -2,6 +2,7 @@
 #include "quant/safetensors.h"
 
 #include <algorithm>
+#include <cassert>
 #include <cerrno>
 #include <cstdio>
 #include <limits>
@@ -310,6 +311,7 @@ void SafetensorsWriter::add(std::string name, Dtype dtype, Shape shape, const vo
   std::uint64_t bytes = 0;
   if (!byte_count(shape, dtype_size(dtype), bytes) || bytes > std::uint64_t(PTRDIFF_MAX))
     throw Error("tensor '" + name + "': shape " + shape_string(shape) + " is too large");
+  assert(data || bytes == 0);
   names_.insert(name);
   tensors_.push_back({std::move(name), dtype, std::move(shape), data_size_, data_size_ + bytes});
   data_.push_back(data);

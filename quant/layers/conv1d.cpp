@@ -84,7 +84,7 @@ void Conv1d::backward(const SeqView* dx, const CSeqView& dy, const CSeqView& x, 
   const bool one_gemm = s.dilation == 1 || k == 1;
   for (int bi = 0; bi < x.B; ++bi) {
     const CMapMat dY = frames(dy, bi, 0, co, T);
-    db += dY.rowwise().sum();
+    add_column_sum(db, dY);
     if (one_gemm) {
       MapRowMat dW(dwp, co, long(k) * ci, Stride(long(k) * ci));
       dW.noalias() += dY * frames(x, bi, -s.pad_left, long(k) * ci, T, s.stride).transpose();

@@ -83,7 +83,7 @@ void ConvTranspose1d::backward(const SeqView* dx, const CSeqView& dy, const CSeq
   float* dwp = p.g(w);
   Eigen::Map<Eigen::VectorXf> db(p.g(b), co);
   for (int bi = 0; bi < x.B; ++bi) {
-    db += frames(dy, bi, 0, co, dy.T).rowwise().sum();
+    add_column_sum(db, frames(dy, bi, 0, co, dy.T));
     for_each_tap(s, dy.T, [&](int r, int j, int q, int n) {
       const CMapMat dY = frames(dy, bi, r, co, n, st);
       MapRowMat dWj = tap(dwp, co, k, ci, j);

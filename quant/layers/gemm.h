@@ -34,4 +34,11 @@ inline MapRowMat tap(float* w, int c_out, int k, int c_in, int j) {
   return {w + long(j) * c_in, c_out, c_in, Stride(long(k) * c_in)};
 }
 
+// db += Σ_t dY(:, t), summed column by column: the order of every element's sum is then
+// fixed, where Eigen's rowwise().sum() changes it with the destination's alignment.
+template <class Vec, class M>
+void add_column_sum(Vec&& db, const M& dY) {
+  for (Eigen::Index t = 0; t < dY.cols(); ++t) db += dY.col(t);
+}
+
 }  // namespace tessera::quant::gemm

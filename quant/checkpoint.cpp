@@ -1,0 +1,85 @@
+// checkpoint.cpp — model file layout.
+#include "quant/checkpoint.h"
+
+#include <cmath>
+#include <cstdio>
+
+#include "audio/error.h"
+#include "quant/safetensors.h"
+
+namespace tessera::quant {
+namespace {
+
+Shape to_shape(const std::vector<int>& v) { return Shape(v.begin(), v.end()); }
+
+}  // namespace
+
+std::string save_model(const Tokenizer& tok, const std::string& path, std::int64_t step) {
+  const ExperimentConfig& cfg = tok.config();
+  SafetensorsWriter w;
+  for (const ParamEntry& e : tok.slab().entries())
+    w.add<float>(e.name, to_shape(e.shape), tok.slab().params() + e.ref.offset);
+  const auto& cb = tok.codebooks();
+  w.add<float>("codebooks", {cfg.codebooks.stages, cfg.codebooks.codes, cfg.codebooks.dim}, cb.codebooks().data());
+  w.add<float>("norm.mean", {cfg.model.n_mels}, tok.stats().mean.data());
+  w.add<float>("norm.std", {cfg.model.n_mels}, tok.stats().std.data());
+  const std::string id = w.content_id();
+  char rate[32];
+  std::snprintf(rate, sizeof rate, "%.6g", cfg.code_rate());
+  w.set_metadata("format", kModelFormat);
+  w.set_metadata("format_version", std::to_string(kModelFormatVersion));
+  w.set_metadata("model_id", id);
+  w.set_metadata("step", std::to_string(step));
+  w.set_metadata("code_rate", rate);
+  w.set_metadata("config", resolved_yaml(cfg));
+  w.write(path);
+  return id;
+}
+
+std::unique_ptr<Tokenizer> load_model(const std::string& path, int threads, ModelInfo* info) {
+  SafetensorsReader r(path);
+  const auto& meta = r.metadata();
+  auto it = meta.find("format");
+  if (it == meta.end() || it->second != kModelFormat)
+    throw Error(path + ": not a tessera model (metadata 'format' is missing or not '" + kModelFormat + "')");
+  it = meta.find("format_version");
+  if (it == meta.end() || it->second != std::to_string(kModelFormatVersion))
+    throw Error(path + ": model format version '" + (it == meta.end() ? std::string("?") : it->second) +
+                "' is not supported (this tessera reads version " + std::to_string(kModelFormatVersion) + ")");
+  const std::string yaml = r.metadata_at("config");
+  ExperimentConfig cfg;
+  try {
+    cfg = parse_experiment(yaml, path + " [config]");
+  } catch (const Error& e) {
+    throw Error(std::string("the config stored in the model is invalid: ") + e.what());
+  }
+  auto tok = std::make_unique<Tokenizer>(cfg, threads);
+  for (const ParamEntry& e : tok->slab().entries())
+    r.read_into<float>(e.name, to_shape(e.shape), tok->slab().params() + e.ref.offset);
+  const auto& c = cfg.codebooks;
+  r.read_into<float>("codebooks", {c.stages, c.codes, c.dim}, tok->codebooks().codebooks().data());
+  tok->codebooks().reset_ema();
+  r.read_into<float>("norm.mean", {cfg.model.n_mels}, tok->stats().mean.data());
+  r.read_into<float>("norm.std", {cfg.model.n_mels}, tok->stats().std.data());
+  const std::size_t expected = tok->slab().entries().size() + 3;
+  if (r.tensors().size() != expected)
+    throw Error(path + ": holds " + std::to_string(r.tensors().size()) + " tensors; the stored config needs " +
+                std::to_string(expected));
+  for (float v : tok->stats().std)
+    if (!(v > 0) || !std::isfinite(v)) throw Error(path + ": tensor 'norm.std' holds a non-positive or non-finite value");
+  const std::string id = r.content_id();
+  if (meta.count("model_id") && r.metadata_at("model_id") != id)
+    throw Error(path + ": the weights do not match the stored model id (file damaged or edited)");
+  if (info) {
+    info->model_id = id;
+    info->config_yaml = yaml;
+    try {
+      info->step = std::stoll(meta.count("step") ? r.metadata_at("step") : std::string("0"));
+    } catch (const std::exception&) {
+      throw Error(path + ": metadata 'step' is not a number");
+    }
+  }
+  return tok;
+}
+
+}  // namespace tessera::quant

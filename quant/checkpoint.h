@@ -1,0 +1,29 @@
+// checkpoint.h — the model file (safetensors): weights by layer name, codebooks, band
+// statistics, and in __metadata__ the resolved YAML, the model id (hash of the tensors),
+// the training step and the code rate. Written atomically.
+#pragma once
+#include <cstdint>
+#include <memory>
+#include <string>
+
+#include "quant/tokenizer.h"
+
+namespace tessera::quant {
+
+inline constexpr const char* kModelFormat = "tessera-model";
+inline constexpr int kModelFormatVersion = 1;
+
+struct ModelInfo {
+  std::string model_id;      // 16 hex digits
+  std::int64_t step = 0;     // training steps behind these weights
+  std::string config_yaml;   // resolved experiment
+};
+
+// Writes `tok` to `path` (temporary file, fsync, rename); returns the model id.
+std::string save_model(const Tokenizer& tok, const std::string& path, std::int64_t step);
+
+// Reads a model file, checks format, version, every tensor's name, dtype and shape
+// against the stored config; throws tessera::Error naming the file and the problem.
+std::unique_ptr<Tokenizer> load_model(const std::string& path, int threads, ModelInfo* info = nullptr);
+
+}  // namespace tessera::quant

@@ -1,0 +1,346 @@
+// trainer.cpp — the training loop, validation, checkpoints and resume.
+#include "quant/trainer.h"
+
+#include <chrono>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+
+#include <nlohmann/json.hpp>
+
+#include "audio/atomic_file.h"
+#include "audio/error.h"
+#include "quant/checkpoint.h"
+#include "quant/grad_clip.h"
+#include "quant/safetensors.h"
+
+namespace tessera::quant {
+namespace fs = std::filesystem;
+namespace {
+
+constexpr const char* kStateFormat = "tessera-train-state";
+constexpr int kStateVersion = 1;
+
+AdamConfig adam_config(const TrainConfig& t) {
+  AdamConfig a;
+  a.beta1 = t.beta1;
+  a.beta2 = t.beta2;
+  a.eps = t.adam_epsilon;
+  a.weight_decay = t.weight_decay;
+  a.decoupled = true;
+  return a;
+}
+
+std::string rng_text(const std::mt19937_64& rng) {
+  std::ostringstream s;
+  s << rng;
+  return s.str();
+}
+
+void rng_from_text(std::mt19937_64& rng, const std::string& text, const std::string& origin) {
+  std::istringstream s(text);
+  s >> rng;
+  if (s.fail()) throw Error(origin + ": damaged random-generator state");
+}
+
+// The architecture part of a config (everything but train:), to check a resume.
+std::string architecture_of(ExperimentConfig c) {
+  c.train = TrainConfig{};
+  return resolved_yaml(c);
+}
+
+std::int64_t parse_int(const SafetensorsReader& r, const char* key) {
+  try {
+    return std::stoll(r.metadata_at(key));
+  } catch (const Error&) {
+    throw;
+  } catch (const std::exception&) {
+    throw Error(r.path() + ": metadata '" + key + "' is not a number");
+  }
+}
+
+}  // namespace
+
+Trainer::Trainer(const ExperimentConfig& cfg, std::string run_dir,
+                 const std::function<void(std::size_t, std::size_t)>& load_progress)
+    : cfg_(cfg),
+      dir_(std::move(run_dir)),
+      adam_(0, adam_config(cfg.train)),
+      schedule_(cfg.train.learning_rate, cfg.train.warmup_steps, cfg.train.steps,
+                cfg.train.learning_rate * cfg.train.min_lr_ratio),
+      rng_(std::uint64_t(cfg.train.seed)) {
+  const TrainConfig& t = cfg_.train;
+  if (t.corpus.empty()) throw Error("train.corpus: no corpus given (a folder or a list file of audio)");
+  corpus_ = load_corpus(t.corpus, cfg_.audio, t.validation_share, cfg_.model.hop() * 4,
+                        resolve_threads(t.threads), nullptr, load_progress);
+  const int L = t.segment_frames / cfg_.model.hop();
+  tok_ = std::make_unique<Tokenizer>(cfg_, t.threads, t.batch_size * L);
+  tok_->init(std::uint64_t(t.seed));
+  tok_->stats() = band_stats(corpus_.train);
+  adam_ = Adam(tok_->slab().count(), adam_config(t));
+  if (cfg_.codebooks.learning == CodebookConfig::Learning::loss)
+    codebook_adam_ = std::make_unique<Adam>(tok_->codebooks().codebooks().size(), adam_config(t));
+  train_sampler_ = std::make_unique<SegmentSampler>(corpus_.train, t.segment_frames);
+  val_sampler_ = std::make_unique<SegmentSampler>(corpus_.validation.empty() ? corpus_.train : corpus_.validation,
+                                                  t.segment_frames);
+}
+
+Trainer::~Trainer() = default;
+
+std::string Trainer::model_path() const { return (fs::path(dir_) / "model.safetensors").string(); }
+std::string Trainer::state_path() const { return (fs::path(dir_) / "train-state.safetensors").string(); }
+std::string Trainer::metrics_path() const { return (fs::path(dir_) / "metrics.jsonl").string(); }
+
+void Trainer::draw_batch() {
+  const int B = cfg_.train.batch_size, M = cfg_.model.n_mels, T = cfg_.train.segment_frames;
+  x_.resize(B, M, T);
+  for (int b = 0; b < B; ++b) train_sampler_->draw(rng_, tok_->stats(), x_.frame(b, 0));
+}
+
+void Trainer::kmeans_init() {
+  std::vector<Eigen::MatrixXf> batches;
+  for (int i = 0; i < cfg_.codebooks.kmeans_init_batches; ++i) {
+    draw_batch();
+    tok_->encoder().forward(x_, z_, tok_->slab(), /*train=*/false);
+    batches.emplace_back(z_.all());
+  }
+  tok_->codebooks().init_from(std::span<const Eigen::MatrixXf>(batches));
+}
+
+double Trainer::train_step(int depth, double& recon, double& commitment) {
+  Tokenizer& m = *tok_;
+  ParamSlab& slab = m.slab();
+  ResidualCodebooks& rvq = m.codebooks();
+  const bool loss_mode = cfg_.codebooks.learning == CodebookConfig::Learning::loss;
+  slab.zero_grad();
+  if (loss_mode) rvq.zero_grad();
+
+  m.encoder().forward(x_, z_, slab, /*train=*/true);
+  zq_.resize(z_.B(), z_.C(), z_.T());
+  const QuantLosses q = rvq.forward(z_.all(), depth, zq_.all(), ResidualCodebooks::Pass::train);
+  m.decoder().forward(zq_, y_, slab, /*train=*/true);
+
+  // Reconstruction loss on normalised log-mel and its gradient (the seed of backward).
+  const double n = double(x_.size());
+  const float l1 = float(cfg_.train.l1_weight / n), l2 = float(2.0 * cfg_.train.l2_weight / n);
+  dy_.resize(y_.B(), y_.C(), y_.T());
+  double sum_abs = 0, sum_sq = 0;
+  const float* y = y_.data();
+  const float* x = x_.data();
+  float* dy = dy_.data();
+  for (std::size_t i = 0; i < x_.size(); ++i) {
+    const float e = y[i] - x[i];
+    sum_abs += std::fabs(e);
+    sum_sq += double(e) * e;
+    dy[i] = l1 * float((e > 0) - (e < 0)) + l2 * e;
+  }
+  recon = cfg_.train.l1_weight * sum_abs / n + cfg_.train.l2_weight * sum_sq / n;
+  commitment = q.commitment;
+
+  m.decoder().backward(dy_, dzq_, slab);
+  dz_.resize(z_.B(), z_.C(), z_.T());
+  dz_.zero();
+  rvq.backward(dzq_.all(), dz_.all(), 1.0f, loss_mode ? 1.0f : 0.0f);
+  m.encoder().backward(dz_, slab);
+  return recon + q.commitment + (loss_mode ? q.codebook : 0.0);
+}
+
+ValidationReport Trainer::validate() {
+  Tokenizer& m = *tok_;
+  ResidualCodebooks& rvq = m.codebooks();
+  const int S = cfg_.codebooks.stages, B = cfg_.train.batch_size, M = cfg_.model.n_mels;
+  const int T = cfg_.train.segment_frames, count = cfg_.train.validation_segments;
+  ValidationReport v;
+  v.mel_l1.assign(S, 0.0);
+  double loss_sum = 0, elements = 0;
+  Tensor x, z, zq, y;
+  for (int first = 0; first < count; first += B) {
+    const int nb = std::min(B, count - first);
+    x.resize(nb, M, T);
+    for (int b = 0; b < nb; ++b) val_sampler_->fixed(std::size_t(first + b), std::size_t(count), m.stats(), x.frame(b, 0));
+    m.encoder().forward(x, z, m.slab(), /*train=*/false);
+    zq.resize(z.B(), z.C(), z.T());
+    for (int d = 1; d <= S; ++d) {
+      rvq.forward(z.all(), d, zq.all(), ResidualCodebooks::Pass::eval);
+      m.decoder().forward(zq, y, m.slab(), /*train=*/false);
+      const auto e = (y.all() - x.all()).array();
+      // Back to natural-log units: the normalised error times each band's std.
+      v.mel_l1[d - 1] += (e.abs().colwise() * m.stats().std.array()).sum();
+      if (d == S) loss_sum += cfg_.train.l1_weight * e.abs().sum() + cfg_.train.l2_weight * e.square().sum();
+    }
+    elements += double(x.size());
+  }
+  for (double& l : v.mel_l1) l /= elements;
+  v.loss = loss_sum / elements;
+  last_val_loss_ = v.loss;
+  last_val_l1_ = v.mel_l1.back();
+  return v;
+}
+
+void Trainer::log_metrics(const StepReport& r) {
+  nlohmann::json j = {{"step", r.step},          {"loss", r.loss},   {"recon", r.recon},
+                      {"commitment", r.commitment}, {"lr", r.lr},    {"grad_norm", r.grad_norm},
+                      {"depth", r.depth},        {"steps_per_s", r.steps_per_s}};
+  std::vector<double> ppl;
+  std::vector<int> used;
+  for (int s = 0; s < cfg_.codebooks.stages; ++s) {
+    const StageUsage u = tok_->codebooks().usage().stage(s);
+    ppl.push_back(u.perplexity);
+    used.push_back(u.used);
+  }
+  j["perplexity"] = ppl;
+  j["codes_used"] = used;
+  std::ofstream(metrics_path(), std::ios::app) << j.dump() << "\n";
+}
+
+void Trainer::log_validation(const ValidationReport& v) {
+  nlohmann::json j = {{"step", step_}, {"validation", {{"loss", v.loss}, {"mel_l1_by_depth", v.mel_l1}}}};
+  std::ofstream(metrics_path(), std::ios::app) << j.dump() << "\n";
+}
+
+void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const StepReport&)>& on_step) {
+  const TrainConfig& t = cfg_.train;
+  fs::create_directories(dir_);
+  write_file_atomic((fs::path(dir_) / "config.yaml").string(), resolved_yaml(cfg_));
+  if (step_ == 0) {
+    std::ofstream(metrics_path(), std::ios::trunc).close();
+    kmeans_init();
+  }
+  const auto t0 = std::chrono::steady_clock::now();
+  const std::int64_t first = step_;
+  StepReport r;
+  r.total = t.steps;
+  double since_log_recon = 0, since_log_commit = 0, since_log_loss = 0;
+  int since_log = 0;
+  while (step_ < t.steps) {
+    if (stop && stop->load()) break;
+    draw_batch();
+    const int depth = draw_depth(cfg_.codebooks, rng_);
+    double recon = 0, commit = 0;
+    const double loss = train_step(depth, recon, commit);
+    if (!std::isfinite(loss))
+      throw Error("training diverged at step " + std::to_string(step_ + 1) + " (loss is " + std::to_string(loss) +
+                  "); lower train.learning_rate or check the corpus");
+    ParamSlab& slab = tok_->slab();
+    const double gn = t.grad_clip > 0 ? clip_grad_norm(slab.grads(), slab.count(), t.grad_clip)
+                                      : grad_norm(slab.grads(), slab.count());
+    const double lr = schedule_.at(step_);
+    adam_.step(slab.params(), slab.grads(), float(lr));
+    if (codebook_adam_)
+      codebook_adam_->step(tok_->codebooks().codebooks().data(), tok_->codebooks().codebook_grads().data(), float(lr));
+    ++step_;
+    since_log_loss += loss, since_log_recon += recon, since_log_commit += commit, ++since_log;
+
+    const double elapsed = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    r.step = step_;
+    r.loss = loss, r.recon = recon, r.commitment = commit, r.lr = lr, r.grad_norm = gn, r.depth = depth;
+    r.steps_per_s = elapsed > 0 ? double(step_ - first) / elapsed : 0;
+    r.audio_s_per_s = r.steps_per_s * t.batch_size * t.segment_frames / cfg_.audio.frame_rate();
+    r.eta_s = r.steps_per_s > 0 ? double(t.steps - step_) / r.steps_per_s : 0;
+    if (step_ % t.log_every == 0 || step_ == t.steps) {
+      StepReport mean = r;
+      mean.loss = since_log_loss / since_log, mean.recon = since_log_recon / since_log;
+      mean.commitment = since_log_commit / since_log;
+      log_metrics(mean);
+      r.codes_used.clear();
+      for (int s = 0; s < cfg_.codebooks.stages; ++s) r.codes_used.push_back(tok_->codebooks().usage().stage(s).used);
+      tok_->codebooks().reset_usage();
+      since_log_loss = since_log_recon = since_log_commit = 0, since_log = 0;
+    }
+    if (step_ % t.validate_every == 0 || step_ == t.steps) {
+      log_validation(validate());
+    }
+    r.validation_loss = last_val_loss_;
+    r.validation_mel_l1 = last_val_l1_;
+    if (step_ % t.checkpoint_every == 0 || step_ == t.steps) checkpoint();
+    if (on_step) on_step(r);
+  }
+  if (step_ < t.steps) checkpoint();  // stopped early: keep what was done
+}
+
+void Trainer::checkpoint() {
+  fs::create_directories(dir_);
+  const std::string id = save_model(*tok_, model_path(), step_);
+  ResidualCodebooks& rvq = tok_->codebooks();
+  const CodebookConfig& c = cfg_.codebooks;
+  SafetensorsWriter w;
+  const auto n = std::int64_t(adam_.size());
+  w.add<float>("adam.m", {n}, adam_.m().data());
+  w.add<float>("adam.v", {n}, adam_.v().data());
+  if (codebook_adam_) {
+    const auto nc = std::int64_t(codebook_adam_->size());
+    w.add<float>("codebook_adam.m", {nc}, codebook_adam_->m().data());
+    w.add<float>("codebook_adam.v", {nc}, codebook_adam_->v().data());
+    w.set_metadata("codebook_adam_t", std::to_string(codebook_adam_->steps()));
+  }
+  w.add<float>("ema.cluster_size", {c.stages, c.codes}, rvq.ema_cluster_size().data());
+  w.add<float>("ema.embed_sum", {c.stages, c.codes, c.dim}, rvq.ema_embed_sum().data());
+  w.add<std::int32_t>("codes.steps_since_used", {c.stages, c.codes}, rvq.steps_since_used().data());
+  w.add<float>("restart.pool", {std::int64_t(rvq.restart_pool().size())}, rvq.restart_pool().data());
+  w.add<std::int64_t>("restart.state", {std::int64_t(rvq.restart_pool_state().size())},
+                      rvq.restart_pool_state().data());
+  w.set_metadata("format", kStateFormat);
+  w.set_metadata("format_version", std::to_string(kStateVersion));
+  w.set_metadata("model_id", id);
+  w.set_metadata("step", std::to_string(step_));
+  w.set_metadata("adam_t", std::to_string(adam_.steps()));
+  w.set_metadata("rng", rng_text(rng_));
+  w.set_metadata("codebook_rng", rng_text(rvq.rng()));
+  w.set_metadata("validation_loss", std::to_string(last_val_loss_));
+  w.set_metadata("validation_mel_l1", std::to_string(last_val_l1_));
+  w.write(state_path());
+}
+
+void Trainer::resume() {
+  if (!fs::exists(model_path()) || !fs::exists(state_path()))
+    throw Error("cannot resume: '" + dir_ + "' holds no model.safetensors and train-state.safetensors");
+  ModelInfo info;
+  std::unique_ptr<Tokenizer> loaded = load_model(model_path(), cfg_.train.threads, &info);
+  if (architecture_of(loaded->config()) != architecture_of(cfg_))
+    throw Error("cannot resume: the audio:, model: or codebooks: settings differ from those of '" + model_path() +
+                "' (only train: settings may change on resume)");
+  SafetensorsReader r(state_path());
+  if (!r.metadata().count("format") || r.metadata_at("format") != kStateFormat)
+    throw Error(state_path() + ": not a tessera training state");
+  if (r.metadata_at("format_version") != std::to_string(kStateVersion))
+    throw Error(state_path() + ": unsupported training-state version '" + r.metadata_at("format_version") + "'");
+  if (r.metadata_at("model_id") != info.model_id)
+    throw Error(state_path() + ": belongs to another model than '" + model_path() +
+                "' (interrupted between the two writes?); train again without --resume");
+  // Weights, codebooks and statistics from the model file; the rest from the state file.
+  tok_ = std::move(loaded);
+  ResidualCodebooks& rvq = tok_->codebooks();
+  const CodebookConfig& c = cfg_.codebooks;
+  const auto n = std::int64_t(tok_->slab().count());
+  adam_ = Adam(std::size_t(n), adam_config(cfg_.train));
+  adam_.restore(parse_int(r, "adam_t"), r.get<float>("adam.m", {n}), r.get<float>("adam.v", {n}));
+  if (codebook_adam_) {
+    const auto nc = std::int64_t(rvq.codebooks().size());
+    codebook_adam_->restore(parse_int(r, "codebook_adam_t"), r.get<float>("codebook_adam.m", {nc}),
+                            r.get<float>("codebook_adam.v", {nc}));
+  }
+  r.read_into<float>("ema.cluster_size", {c.stages, c.codes}, rvq.ema_cluster_size().data());
+  r.read_into<float>("ema.embed_sum", {c.stages, c.codes, c.dim}, rvq.ema_embed_sum().data());
+  r.read_into<std::int32_t>("codes.steps_since_used", {c.stages, c.codes}, rvq.steps_since_used().data());
+  r.read_into<float>("restart.pool", {std::int64_t(rvq.restart_pool().size())}, rvq.restart_pool().data());
+  r.read_into<std::int64_t>("restart.state", {std::int64_t(rvq.restart_pool_state().size())},
+                            rvq.restart_pool_state().data());
+  rng_from_text(rng_, r.metadata_at("rng"), state_path());
+  rng_from_text(rvq.rng(), r.metadata_at("codebook_rng"), state_path());
+  step_ = parse_int(r, "step");
+  if (step_ != info.step) throw Error(state_path() + ": step differs from the model file's");
+  last_val_loss_ = std::stod(r.metadata_at("validation_loss"));
+  last_val_l1_ = std::stod(r.metadata_at("validation_mel_l1"));
+  // Keep the metrics of the steps that the checkpoint covers; later lines are redone.
+  std::ifstream in(metrics_path());
+  std::string line, kept;
+  while (std::getline(in, line)) {
+    const auto j = nlohmann::json::parse(line, nullptr, /*allow_exceptions=*/false);
+    if (j.is_object() && j.contains("step") && j["step"].is_number_integer() && j["step"].get<std::int64_t>() <= step_)
+      kept += line + "\n";
+  }
+  write_file_atomic(metrics_path(), kept);
+}
+
+}  // namespace tessera::quant

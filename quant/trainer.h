@@ -1,0 +1,90 @@
+// trainer.h — the training loop: corpus → segments → model → loss → Adam, with
+// validation, metrics.jsonl, checkpoints (model + train state) and exact resume.
+// B batch, M mels, T frames per segment, L = T / hop code frames, D latent dims.
+//
+// One step (seeded; the same config, seed and threads give the same weights):
+//   x  = B random segments, normalised           [B, M, T]
+//   z  = encoder(x)                               [B, D, L]
+//   d  = draw_depth()                             stage dropout
+//   zq = codebooks(z, d)                          straight-through, commitment loss
+//   y  = decoder(zq)                              [B, M, T]
+//   loss = l1·mean|y − x| + l2·mean(y − x)² + commitment (+ codebook loss in loss mode)
+//   backward in reverse order; clip the global gradient norm; Adam with warm-up + cosine.
+#pragma once
+#include <atomic>
+#include <cstdint>
+#include <functional>
+#include <memory>
+#include <random>
+#include <string>
+#include <vector>
+
+#include "quant/adam.h"
+#include "quant/corpus.h"
+#include "quant/experiment_config.h"
+#include "quant/lr_schedule.h"
+#include "quant/tokenizer.h"
+
+namespace tessera::quant {
+
+struct StepReport {
+  std::int64_t step = 0, total = 0;
+  double loss = 0, recon = 0, commitment = 0, lr = 0, grad_norm = 0;
+  int depth = 0;
+  double validation_loss = -1;   // last validation (normalised units), −1 before the first
+  double validation_mel_l1 = -1; // last validation, natural-log units, full depth
+  std::vector<int> codes_used;   // per stage, since the last log line
+  double steps_per_s = 0, audio_s_per_s = 0, eta_s = 0;
+};
+
+struct ValidationReport {
+  double loss = 0;                 // normalised L1 + L2 at full depth
+  std::vector<double> mel_l1;      // per depth 1..S, natural-log units
+};
+
+class Trainer {
+ public:
+  // Loads the corpus (cfg.train.corpus) and builds the model; nothing is written yet.
+  Trainer(const ExperimentConfig& cfg, std::string run_dir,
+          const std::function<void(std::size_t, std::size_t)>& load_progress = {});
+  ~Trainer();
+
+  // Continues from RUN/model.safetensors + RUN/train-state.safetensors (throws if absent).
+  void resume();
+  // Trains up to cfg.train.steps (or until `stop` becomes true; then a checkpoint is
+  // written before returning). Calls on_step after every step.
+  void run(const std::atomic<bool>* stop, const std::function<void(const StepReport&)>& on_step);
+  // Full-depth and per-depth validation on the fixed held-out segments.
+  ValidationReport validate();
+  // Writes model.safetensors and train-state.safetensors atomically.
+  void checkpoint();
+
+  std::int64_t step() const { return step_; }
+  const Corpus& corpus() const { return corpus_; }
+  Tokenizer& model() { return *tok_; }
+  std::string model_path() const;
+  std::string state_path() const;
+  std::string metrics_path() const;
+
+ private:
+  void kmeans_init();
+  void draw_batch();
+  double train_step(int depth, double& recon, double& commitment);
+  void log_metrics(const StepReport& r);
+  void log_validation(const ValidationReport& v);
+
+  ExperimentConfig cfg_;
+  std::string dir_;
+  Corpus corpus_;
+  std::unique_ptr<Tokenizer> tok_;
+  std::unique_ptr<SegmentSampler> train_sampler_, val_sampler_;
+  Adam adam_;
+  std::unique_ptr<Adam> codebook_adam_;  // loss-mode codebooks
+  LrSchedule schedule_;
+  std::mt19937_64 rng_;
+  std::int64_t step_ = 0;
+  Tensor x_, z_, zq_, y_, dy_, dzq_, dz_;
+  double last_val_loss_ = -1, last_val_l1_ = -1;
+};
+
+}  // namespace tessera::quant
