@@ -111,39 +111,15 @@ int code_block(int d) { return std::max(1, kPackFloats / d); }
 // packing limit above.
 int chunk_columns(int k, int d) { return std::min(std::clamp(65536 / std::max(k, 1), 16, 4096), code_block(d)); }
 
-// Index of the smallest csq[k] − 2·s[k] (the lowest k on ties; 0 if all are NaN). Lane-wise
-// minima with their indices, so the compiler can vectorise the scan.
+// Index of the smallest csq[k] − 2·s[k], the lowest k on ties (0 if they are all NaN): a
+// vectorised minimum, then a scan for its first occurrence (2·s is exact, so both passes
+// compute bit-identical values).
 int argmin_scores(const float* csq, const float* s, int K) {
-  constexpr int L = 16;
-  float m[L];
-  int at[L];
-  for (int l = 0; l < L; ++l) {
-    m[l] = std::numeric_limits<float>::infinity();
-    at[l] = K;
-  }
-  int k = 0;
-  for (; k + L <= K; k += L)
-    for (int l = 0; l < L; ++l) {
-      const float v = csq[k + l] - 2.0f * s[k + l];
-      const bool lower = v < m[l];
-      m[l] = lower ? v : m[l];
-      at[l] = lower ? k + l : at[l];
-    }
-  float best = std::numeric_limits<float>::infinity();
-  int arg = K;
-  for (int l = 0; l < L; ++l)
-    if (m[l] < best || (m[l] == best && at[l] < arg)) {
-      best = m[l];
-      arg = at[l];
-    }
-  for (; k < K; ++k) {
-    const float v = csq[k] - 2.0f * s[k];
-    if (v < best) {
-      best = v;
-      arg = k;
-    }
-  }
-  return arg < K ? arg : 0;
+  const Eigen::Map<const Eigen::ArrayXf> c(csq, K), x(s, K);
+  const float best = (c - 2.0f * x).minCoeff();
+  for (int k = 0; k < K; ++k)
+    if (csq[k] - 2.0f * s[k] == best) return k;
+  return 0;
 }
 
 void validate_input(const Eigen::Ref<const Eigen::MatrixXf>& x, int k) {
