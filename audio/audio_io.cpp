@@ -87,6 +87,9 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
   if (sf_error(f.get()) != SF_ERR_NO_ERROR)
     throw Error("cannot read audio file '" + path + "': " + sf_strerror(f.get()));
   if (out.samples.empty()) throw Error("audio file '" + path + "' holds no samples (truncated?)");
+  if (sf_count_t(out.samples.size()) < sfinfo.frames)
+    throw Error("audio file '" + path + "' is truncated: its header promises " + std::to_string(sfinfo.frames) +
+                " frames, the file holds " + std::to_string(out.samples.size()));
   for (std::size_t i = 0; i < out.samples.size(); ++i)
     if (!std::isfinite(out.samples[i]))
       throw Error("audio file '" + path + "' holds a non-finite sample (NaN or Inf) at " +

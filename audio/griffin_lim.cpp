@@ -17,7 +17,7 @@ namespace {
 // that the compiler vectorises them; square roots go through Eigen (std::sqrt's errno path
 // would block vectorisation). A bin whose phase is undefined (zero) gets phase 0.
 
-// y = A·P/|P| with P = C − β·prev; prev ← C. p and s hold F scratch values each (2F for p).
+// y = A·P/|P| with P = C − β·prev; prev ← C. p and s hold 2F and F scratch values.
 void momentum_phase(const std::complex<float>* c, std::complex<float>* prev, const float* target,
                     float beta, int F, float* p, float* s, std::complex<float>* y) {
   const float* __restrict cr = reinterpret_cast<const float*>(c);
@@ -26,35 +26,43 @@ void momentum_phase(const std::complex<float>* c, std::complex<float>* prev, con
   float* __restrict n2 = s;
   for (int k = 0; k < F; ++k) {
     const float p0 = cr[2 * k] - beta * pr[2 * k], p1 = cr[2 * k + 1] - beta * pr[2 * k + 1];
-    pp[2 * k] = p0;
+    const float q = p0 * p0 + p1 * p1;
+    const bool zero = q == 0.0f;
+    pp[2 * k] = zero ? 1.0f : p0;
     pp[2 * k + 1] = p1;
-    n2[k] = p0 * p0 + p1 * p1;
+    n2[k] = zero ? 1.0f : q;
   }
   std::copy(cr, cr + 2 * F, pr);
   Eigen::Map<Eigen::ArrayXf> scale(s, F);
-  scale = Eigen::Map<const Eigen::ArrayXf>(target, F) / scale.max(1e-30f).sqrt();
+  scale = Eigen::Map<const Eigen::ArrayXf>(target, F) / scale.sqrt();
   float* __restrict yr = reinterpret_cast<float*>(y);
-  const float* __restrict a = target;
   const float* __restrict sc = s;
   for (int k = 0; k < F; ++k) {
-    const bool zero = pp[2 * k] == 0.0f && pp[2 * k + 1] == 0.0f;
-    yr[2 * k] = zero ? a[k] : pp[2 * k] * sc[k];
-    yr[2 * k + 1] = zero ? 0.0f : pp[2 * k + 1] * sc[k];
+    yr[2 * k] = pp[2 * k] * sc[k];
+    yr[2 * k + 1] = pp[2 * k + 1] * sc[k];
   }
 }
 
-// y = A·C/|C| (plain GL), |C| given.
+// y = A·C/|C| (plain GL), |C| given; p and s as above.
 void keep_phase(const std::complex<float>* c, const float* mag, const float* target, int F,
-                std::complex<float>* y) {
+                float* p, float* s, std::complex<float>* y) {
   const float* __restrict cr = reinterpret_cast<const float*>(c);
   const float* __restrict m = mag;
-  const float* __restrict a = target;
-  float* __restrict yr = reinterpret_cast<float*>(y);
+  float* __restrict pp = p;
+  float* __restrict d = s;
   for (int k = 0; k < F; ++k) {
-    const bool zero = !(m[k] > 0.0f);
-    const float s = a[k] / (zero ? 1.0f : m[k]);
-    yr[2 * k] = zero ? a[k] : cr[2 * k] * s;
-    yr[2 * k + 1] = zero ? 0.0f : cr[2 * k + 1] * s;
+    const bool zero = m[k] == 0.0f;
+    pp[2 * k] = zero ? 1.0f : cr[2 * k];
+    pp[2 * k + 1] = cr[2 * k + 1];
+    d[k] = zero ? 1.0f : m[k];
+  }
+  Eigen::Map<Eigen::ArrayXf> scale(s, F);
+  scale = Eigen::Map<const Eigen::ArrayXf>(target, F) / scale;
+  float* __restrict yr = reinterpret_cast<float*>(y);
+  const float* __restrict sc = s;
+  for (int k = 0; k < F; ++k) {
+    yr[2 * k] = pp[2 * k] * sc[k];
+    yr[2 * k + 1] = pp[2 * k + 1] * sc[k];
   }
 }
 }  // namespace
@@ -157,7 +165,8 @@ std::vector<float> GriffinLim::iterate(const Eigen::MatrixXf& start, const Eigen
             mel2 += double(m_t[m]) * m_t[m];
           }
         fb->apply_pinv(mel_res_.data(), corr_.data(), mel_tmp_.data());
-        for (int k = 0; k < F; ++k) target_[std::size_t(k)] = std::max(mag_[std::size_t(k)] + corr_[std::size_t(k)], 0.0f);
+        Eigen::Map<Eigen::ArrayXf>(target_.data(), F) =
+            (Eigen::Map<const Eigen::ArrayXf>(mag_.data(), F) + Eigen::Map<const Eigen::ArrayXf>(corr_.data(), F)).max(0.0f);
         target = target_.data();
       }
       if (stats)
@@ -171,7 +180,8 @@ std::vector<float> GriffinLim::iterate(const Eigen::MatrixXf& start, const Eigen
       // Momentum and phase: Yₙ = Aₙ·Pₙ/|Pₙ|.
       if (use_momentum)
         momentum_phase(c_.data(), c_prev_.col(t).data(), target, beta, F, phase_.data(), scale_.data(), y_.col(t).data());
-      else keep_phase(c_.data(), mag_.data(), target, F, y_.col(t).data());
+      else
+        keep_phase(c_.data(), mag_.data(), target, F, phase_.data(), scale_.data(), y_.col(t).data());
     }
     if (stats) {
       GriffinLimStep s;

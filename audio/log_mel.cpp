@@ -17,7 +17,7 @@ static float checked_floor(double floor) {
 
 LogMel::LogMel(const AudioConfig& cfg)
     : stft_(cfg),
-      mel_(cfg),
+      mel_(cfg, MelFilterbank::Inverse::without),
       floor_(checked_floor(cfg.log_floor)),
       bins_(std::size_t(stft_.n_bins())),
       mag_(std::size_t(stft_.n_bins())) {}

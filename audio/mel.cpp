@@ -5,6 +5,7 @@
 #include <Eigen/Dense>
 #include <algorithm>
 #include <cmath>
+#include <stdexcept>
 #include <string>
 
 #include "audio/error.h"
@@ -39,7 +40,7 @@ double mel_to_hz(double mel, MelScale scale) {
 }
 
 MelFilterbank::MelFilterbank(int sample_rate, int n_fft, int n_mels, double f_min, double f_max,
-                             MelScale scale, bool norm_area)
+                             MelScale scale, bool norm_area, Inverse inverse)
     : n_mels_(n_mels), n_bins_(n_fft / 2 + 1) {
   if (sample_rate <= 0) throw Error("sample_rate must be positive, got " + std::to_string(sample_rate));
   if (n_fft < 2 || n_fft % 2 != 0)
@@ -84,14 +85,41 @@ MelFilterbank::MelFilterbank(int sample_rate, int n_fft, int n_mels, double f_mi
     offset_[std::size_t(m) + 1] = weights_.size();
   }
 
-  // Pseudo-inverse in double: P = M⁺ (F x M) by complete orthogonal decomposition,
-  // G = (M·Mᵀ)⁺ = Pᵀ·P, and L = λ_max(M·Mᵀ) = λ_max(MᵀM).
-  const Eigen::MatrixXd P = Eigen::CompleteOrthogonalDecomposition<Eigen::MatrixXd>(W).pseudoInverse();
+  // Pseudo-inverse in double through the M x M Gram matrix: with M·Mᵀ = V·Λ·Vᵀ,
+  // G = (M·Mᵀ)⁺ = V·Λ⁺·Vᵀ and M⁺ = Mᵀ·G (A⁺ = Aᵀ(AAᵀ)⁺, Penrose 1955). Eigenvalues below
+  // λ_max·1e-12 (singular values below σ_max·1e-6) count as zero, so empty bands are handled.
+  // L = λ_max(M·Mᵀ) = λ_max(MᵀM) is the NNLS step bound.
   dense_ = W.cast<float>();
-  pinv_ = P.cast<float>();
-  gram_pinv_ = (P.transpose() * P).cast<float>();
-  Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> eig(W * W.transpose(), Eigen::EigenvaluesOnly);
-  lipschitz_ = eig.eigenvalues().maxCoeff();
+  if (inverse == Inverse::without) return;
+  const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> eig(W * W.transpose());
+  const Eigen::VectorXd& lambda = eig.eigenvalues();
+  lipschitz_ = lambda.maxCoeff();
+  Eigen::VectorXd inv = Eigen::VectorXd::Zero(n_mels);
+  for (int i = 0; i < n_mels; ++i)
+    if (lambda(i) > lipschitz_ * 1e-12) inv(i) = 1.0 / lambda(i);
+  const Eigen::MatrixXd G = eig.eigenvectors() * inv.asDiagonal() * eig.eigenvectors().transpose();
+  pinv_ = (W.transpose() * G).cast<float>();
+  gram_pinv_ = G.cast<float>();
+  has_inverse_ = true;
+}
+
+void MelFilterbank::require_inverse() const {
+  if (!has_inverse_) throw std::logic_error("mel filterbank was built without its pseudo-inverse");
+}
+
+const Eigen::MatrixXf& MelFilterbank::pinv() const {
+  require_inverse();
+  return pinv_;
+}
+
+const Eigen::MatrixXf& MelFilterbank::gram_pinv() const {
+  require_inverse();
+  return gram_pinv_;
+}
+
+double MelFilterbank::lipschitz() const {
+  require_inverse();
+  return lipschitz_;
 }
 
 void MelFilterbank::apply(const float* mag, float* mel) const {
@@ -117,6 +145,7 @@ void MelFilterbank::apply_transpose(const float* v, float* out) const {
 }
 
 void MelFilterbank::apply_pinv(const float* v, float* out, float* scratch) const {
+  require_inverse();
   Eigen::Map<Eigen::VectorXf> g(scratch, n_mels_);
   g.noalias() = gram_pinv_ * Eigen::Map<const Eigen::VectorXf>(v, n_mels_);
   apply_transpose(scratch, out);

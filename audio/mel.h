@@ -22,12 +22,16 @@ double mel_to_hz(double mel, MelScale scale);
 
 class MelFilterbank {
  public:
+  // What to precompute beyond the filters: the pseudo-inverse (an M x M eigendecomposition,
+  // a few ms) is needed by the inversion only, so feature extraction leaves it out.
+  enum class Inverse { with, without };
+
   // Throws tessera::Error on a bad sample rate, n_fft, n_mels or f_min/f_max.
   MelFilterbank(int sample_rate, int n_fft, int n_mels, double f_min, double f_max,
-                MelScale scale, bool norm_area);
-  explicit MelFilterbank(const AudioConfig& cfg)
+                MelScale scale, bool norm_area, Inverse inverse = Inverse::with);
+  explicit MelFilterbank(const AudioConfig& cfg, Inverse inverse = Inverse::with)
       : MelFilterbank(cfg.sample_rate, cfg.n_fft, cfg.n_mels, cfg.f_min, cfg.f_max,
-                      cfg.mel_scale, cfg.mel_norm_area) {}
+                      cfg.mel_scale, cfg.mel_norm_area, inverse) {}
 
   int n_mels() const { return n_mels_; }
   int n_bins() const { return n_bins_; }
@@ -48,9 +52,11 @@ class MelFilterbank {
   int band_size(int m) const { return int(offset_[std::size_t(m) + 1] - offset_[std::size_t(m)]); }
 
   const Eigen::MatrixXf& dense() const { return dense_; }  // M x F
-  const Eigen::MatrixXf& pinv() const { return pinv_; }    // F x M, Moore–Penrose
-  const Eigen::MatrixXf& gram_pinv() const { return gram_pinv_; }  // M x M, (M·Mᵀ)⁺
-  double lipschitz() const { return lipschitz_; }  // largest eigenvalue of MᵀM
+  // Built with Inverse::with only (std::logic_error otherwise), as is apply_pinv.
+  const Eigen::MatrixXf& pinv() const;       // F x M, Moore–Penrose M⁺ = Mᵀ·G
+  const Eigen::MatrixXf& gram_pinv() const;  // M x M, G = (M·Mᵀ)⁺
+  double lipschitz() const;                  // largest eigenvalue of MᵀM
+  bool has_inverse() const { return has_inverse_; }
 
  private:
   int n_mels_, n_bins_;
@@ -59,6 +65,8 @@ class MelFilterbank {
   std::vector<float> weights_;         // non-zero weights, band after band
   Eigen::MatrixXf dense_, pinv_, gram_pinv_;
   double lipschitz_ = 0.0;
+  bool has_inverse_ = false;
+  void require_inverse() const;
 };
 
 }  // namespace tessera::audio

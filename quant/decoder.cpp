@@ -84,23 +84,25 @@ void Decoder::forward_lane(Lane& Ln, const CSeqView& x, const SeqView& y, const 
   // Margin of e[r], the input of the conv that follows resolution r.
   auto e_margin = [&](int r) { return r < S ? stages_[r].up.s.margin() : conv_out_.s.margin(); };
 
-  Ln.x.reshape(B, cfg_.latent_dim, x.T, conv_in_.s.margin());
+  Ln.x.reshape(B, cfg_.latent_dim, x.T, conv_in_.s.margin(), Layout::interleaved);
   copy_frames(Ln.x.view(), x);
   int T = conv_in_.s.out_frames(x.T);
-  Ln.e[0].reshape(B, C, T, e_margin(0));
+  Ln.e[0].reshape(B, C, T, e_margin(0), Layout::interleaved);
   conv_in_.forward(Ln.e[0].view(), Ln.x.view(), p, Epilogue::elu);
   for (int i = 0; i < S; ++i) {
     const Stage& st = stages_[i];
     T = st.up.s.out_frames(T);
-    Ln.y[i + 1].reshape(B, C, T, 0);
+    Ln.y[i + 1].reshape(B, C, T, 0, Layout::interleaved);
     const SeqView yv = Ln.y[i + 1].view();
     st.up.forward(yv, Ln.e[i].view(), p);
     for (std::size_t u = 0; u < st.units.size(); ++u)
       st.units[u].forward(yv, yv, train ? Ln.acts[i][u] : Ln.acts[0][0], p);
-    Ln.e[i + 1].reshape(B, C, T, e_margin(i + 1));
+    Ln.e[i + 1].reshape(B, C, T, e_margin(i + 1), Layout::interleaved);
     elu_forward(Ln.e[i + 1].view(), yv);
   }
-  conv_out_.forward(y, Ln.e[S].view(), p);
+  Ln.io.reshape(B, cfg_.n_mels, y.T, 0, Layout::interleaved);
+  conv_out_.forward(Ln.io.view(), Ln.e[S].view(), p);
+  copy_frames(y, Ln.io.view());
 }
 
 void Decoder::backward_lane(Lane& Ln, const CSeqView& dy, const SeqView& dzq, const ParamView& p) const {
@@ -108,12 +110,14 @@ void Decoder::backward_lane(Lane& Ln, const CSeqView& dy, const SeqView& dzq, co
   PaddedTensor* g = &Ln.ga;
   PaddedTensor* other = &Ln.gb;
   auto grad_like = [](PaddedTensor& t, const PaddedTensor& like) {
-    t.reshape(like.B(), like.C(), like.T(), like.margin());
+    t.reshape_like(like);
     t.zero();
   };
   grad_like(*g, Ln.e[S]);
   SeqView gv = g->view();
-  conv_out_.backward(&gv, dy, Ln.e[S].view(), p);
+  Ln.io.reshape(dy.B, dy.C, dy.T, 0, Layout::interleaved);
+  copy_frames(Ln.io.view(), dy);
+  conv_out_.backward(&gv, Ln.io.view(), Ln.e[S].view(), p);
   // Loop invariant: *g holds dL/de[i + 1].
   for (int i = S - 1; i >= 0; --i) {
     gv = g->view();
@@ -175,12 +179,17 @@ void Decoder::backward(const Tensor& dy, Tensor& dzq, ParamSlab& slab) {
     throw Error("decoder backward: gradient shape [" + std::to_string(dy.B()) + ", " + std::to_string(dy.C()) +
                 ", " + std::to_string(dy.T()) + "] does not match the last forward");
   dzq.resize(batch_, cfg_.latent_dim, frames_);
-  pool_.run([&](int l) {
-    Lane& Ln = lanes_[std::size_t(l)];
-    if (Ln.nb == 0) return;
-    backward_lane(Ln, dy.view().items(Ln.b0, Ln.nb), dzq.view().items(Ln.b0, Ln.nb),
-                  lane_params(slab, range_, l, Ln.grads));
-  });
+  try {
+    pool_.run([&](int l) {
+      Lane& Ln = lanes_[std::size_t(l)];
+      if (Ln.nb == 0) return;
+      backward_lane(Ln, dy.view().items(Ln.b0, Ln.nb), dzq.view().items(Ln.b0, Ln.nb),
+                    lane_params(slab, range_, l, Ln.grads));
+    });
+  } catch (...) {
+    clear_lane_grads(lanes_);
+    throw;
+  }
   reduce_lane_grads(pool_, slab, range_, lanes_);
 }
 

@@ -52,6 +52,7 @@ class Decoder {
     std::vector<std::vector<ResidualUnit::Acts>> acts; // per stage and unit
     std::vector<PaddedTensor> e;                       // elu(stream) per resolution r ≤ S
     PaddedTensor ga, gb, gx;                           // backward gradients
+    PaddedTensor io;                                   // output / its gradient, interleaved
     ResidualUnit::Scratch scratch;
     std::vector<float> grads;                          // private gradients (lanes ≥ 1)
     Tensor chunk;                                      // output frames of a time chunk

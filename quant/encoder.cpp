@@ -85,15 +85,15 @@ void Encoder::forward_lane(Lane& L, const CSeqView& x, const SeqView& z, const P
   // A conv whose output feeds only an ELU writes elu(output) straight into e[r].
   auto run_into = [&](const Conv1d& conv, const CSeqView& in, int r, int t) {
     if (has_units(r)) {
-      L.y[r].reshape(B, C, t, 0);
+      L.y[r].reshape(B, C, t, 0, Layout::interleaved);
       conv.forward(L.y[r].view(), in, p);
     } else {
-      L.e[r].reshape(B, C, t, e_margin(r));
+      L.e[r].reshape(B, C, t, e_margin(r), Layout::interleaved);
       conv.forward(L.e[r].view(), in, p, Epilogue::elu);
     }
   };
 
-  L.x.reshape(B, cfg_.n_mels, x.T, conv_in_.s.margin());
+  L.x.reshape(B, cfg_.n_mels, x.T, conv_in_.s.margin(), Layout::interleaved);
   copy_frames(L.x.view(), x);
   int T = x.T;
   run_into(conv_in_, L.x.view(), 0, T);
@@ -103,13 +103,15 @@ void Encoder::forward_lane(Lane& L, const CSeqView& x, const SeqView& z, const P
       const SeqView y = L.y[r].view();
       for (std::size_t u = 0; u < st.units.size(); ++u)
         st.units[u].forward(y, y, train ? L.acts[r][u] : L.acts[0][0], p);
-      L.e[r].reshape(B, C, T, e_margin(r));
+      L.e[r].reshape(B, C, T, e_margin(r), Layout::interleaved);
       elu_forward(L.e[r].view(), y);
     }
     T = st.down.s.out_frames(T);
     run_into(st.down, L.e[r].view(), r + 1, T);
   }
-  conv_out_.forward(z, L.e[S].view(), p);
+  L.io.reshape(B, cfg_.latent_dim, z.T, 0, Layout::interleaved);
+  conv_out_.forward(L.io.view(), L.e[S].view(), p);
+  copy_frames(z, L.io.view());
 }
 
 void Encoder::backward_lane(Lane& L, const CSeqView& dz, const ParamView& p) const {
@@ -117,12 +119,14 @@ void Encoder::backward_lane(Lane& L, const CSeqView& dz, const ParamView& p) con
   PaddedTensor* g = &L.ga;
   PaddedTensor* other = &L.gb;
   auto grad_like = [](PaddedTensor& t, const PaddedTensor& like) {
-    t.reshape(like.B(), like.C(), like.T(), like.margin());
+    t.reshape_like(like);
     t.zero();
   };
   grad_like(*g, L.e[S]);
   SeqView gv = g->view();
-  conv_out_.backward(&gv, dz, L.e[S].view(), p);
+  L.io.reshape(dz.B, dz.C, dz.T, 0, Layout::interleaved);
+  copy_frames(L.io.view(), dz);
+  conv_out_.backward(&gv, L.io.view(), L.e[S].view(), p);
   // Loop invariant: *g holds dL/de[r + 1].
   for (int r = S - 1; r >= -1; --r) {
     const int res = r + 1;
@@ -184,11 +188,16 @@ void Encoder::backward(const Tensor& dz, ParamSlab& slab) {
   if (dz.B() != batch_ || dz.C() != cfg_.latent_dim || dz.T() != out_frames(frames_))
     throw Error("encoder backward: gradient shape [" + std::to_string(dz.B()) + ", " + std::to_string(dz.C()) +
                 ", " + std::to_string(dz.T()) + "] does not match the last forward");
-  pool_.run([&](int l) {
-    Lane& L = lanes_[std::size_t(l)];
-    if (L.nb == 0) return;
-    backward_lane(L, dz.view().items(L.b0, L.nb), lane_params(slab, range_, l, L.grads));
-  });
+  try {
+    pool_.run([&](int l) {
+      Lane& L = lanes_[std::size_t(l)];
+      if (L.nb == 0) return;
+      backward_lane(L, dz.view().items(L.b0, L.nb), lane_params(slab, range_, l, L.grads));
+    });
+  } catch (...) {
+    clear_lane_grads(lanes_);
+    throw;
+  }
   reduce_lane_grads(pool_, slab, range_, lanes_);
 }
 

@@ -61,6 +61,7 @@ class Encoder {
     std::vector<std::vector<ResidualUnit::Acts>> acts; // per stage and unit
     std::vector<PaddedTensor> e;                       // elu(stream) per resolution r ≤ S
     PaddedTensor ga, gb;                               // backward gradients (ping-pong)
+    PaddedTensor io;                                   // output / its gradient, interleaved
     ResidualUnit::Scratch scratch;
     std::vector<float> grads;                          // private gradients (lanes ≥ 1)
     Tensor chunk;                                      // latent frames of a time chunk

@@ -2,6 +2,7 @@
 // gradients are added back, in a fixed order so results depend only on the lane count.
 // B batch.
 #pragma once
+#include <algorithm>
 #include <cstddef>
 #include <vector>
 
@@ -20,24 +21,32 @@ inline LaneItems lane_items(int B, int l, int n) {
 }
 
 // The ParamView lane l writes gradients through: the slab itself for lane 0, else the
-// lane's private buffer for `range` (resized and zeroed here).
+// lane's private buffer for `range`, which is all zeros between backward passes
+// (reduce_lane_grads clears it as it reads it).
 inline ParamView lane_params(ParamSlab& slab, ParamRef range, int l, std::vector<float>& priv) {
   if (l == 0) return slab.view();
-  priv.assign(range.size, 0.0f);
+  if (priv.size() != range.size) priv.assign(range.size, 0.0f);
   return {slab.params(), priv.data(), range.offset};
 }
 
-// slab grads[range] += Σ_{l ≥ 1, used[l]} priv[l], lanes in order, elements split over the pool.
+// slab grads[range] += Σ_{l ≥ 1} priv[l] in lane order, then priv[l] = 0; the elements
+// are split over the pool. Lanes without items this batch hold zeros and are skipped.
 template <class Lanes>
-void reduce_lane_grads(ThreadPool& pool, ParamSlab& slab, ParamRef range, const Lanes& lanes) {
+void reduce_lane_grads(ThreadPool& pool, ParamSlab& slab, ParamRef range, Lanes& lanes) {
   float* g = slab.grads() + range.offset;
   pool.parallel_for(range.size, [&](std::size_t i0, std::size_t i1) {
     for (std::size_t l = 1; l < lanes.size(); ++l) {
-      if (lanes[l].nb == 0) continue;
-      const float* src = lanes[l].grads.data();
-      for (std::size_t i = i0; i < i1; ++i) g[i] += src[i];
+      float* src = lanes[l].grads.data();
+      if (lanes[l].nb == 0 || lanes[l].grads.size() != range.size) continue;
+      for (std::size_t i = i0; i < i1; ++i) g[i] += src[i], src[i] = 0.0f;
     }
   });
+}
+
+// Restores the all-zero invariant of the private buffers after a failed backward.
+template <class Lanes>
+void clear_lane_grads(Lanes& lanes) {
+  for (auto& lane : lanes) std::fill(lane.grads.begin(), lane.grads.end(), 0.0f);
 }
 
 }  // namespace tessera::quant

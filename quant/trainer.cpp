@@ -225,6 +225,9 @@ void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const 
     ParamSlab& slab = tok_->slab();
     const double gn = t.grad_clip > 0 ? clip_grad_norm(slab.grads(), slab.count(), t.grad_clip)
                                       : grad_norm(slab.grads(), slab.count());
+    if (!std::isfinite(gn))
+      throw Error("training diverged at step " + std::to_string(step_ + 1) +
+                  " (the gradient norm is not finite); lower train.learning_rate or check the corpus");
     const double lr = schedule_.at(step_);
     adam_.step(slab.params(), slab.grads(), float(lr));
     if (codebook_adam_)

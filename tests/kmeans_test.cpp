@@ -31,7 +31,8 @@ Eigen::MatrixXf gaussian(int d, int n, std::uint64_t seed) {
 
 bool columns_distinct(const Eigen::MatrixXf& c) {
   std::set<std::vector<float>> seen;
-  for (Eigen::Index k = 0; k < c.cols(); ++k) seen.insert(std::vector<float>(c.col(k).data(), c.col(k).data() + c.rows()));
+  for (Eigen::Index k = 0; k < c.cols(); ++k)
+    seen.insert(std::vector<float>(c.col(k).data(), c.col(k).data() + c.rows()));
   return Eigen::Index(seen.size()) == c.cols();
 }
 
@@ -79,7 +80,8 @@ TEST_CASE("k-means on four separated blobs finds the blob centres") {
   const auto res = kmeans(x, 4, rng);
   for (const auto& c : centre) {
     double best = 1e9;
-    for (int k = 0; k < 4; ++k) best = std::min<double>(best, std::hypot(res.centres(0, k) - c[0], res.centres(1, k) - c[1]));
+    for (int k = 0; k < 4; ++k)
+      best = std::min<double>(best, std::hypot(res.centres(0, k) - c[0], res.centres(1, k) - c[1]));
     CHECK(best <= 0.01);  // the mean of 100 points of spread 0.01 is within ~0.001
   }
   CHECK(res.mse <= 2 * 0.01 * 0.01 * 1.2);  // D·σ² within-blob variance, +20% sampling slack

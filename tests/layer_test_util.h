@@ -21,8 +21,9 @@
 namespace tessera::quant::test {
 
 // Torch layout [B][C][T] → a padded channels-last batch.
-inline void from_torch(PaddedTensor& dst, const std::vector<float>& x, int B, int C, int T, int margin) {
-  dst.reshape(B, C, T, margin);
+inline void from_torch(PaddedTensor& dst, const std::vector<float>& x, int B, int C, int T, int margin,
+                       Layout layout = Layout::items) {
+  dst.reshape(B, C, T, margin, layout);
   const SeqView v = dst.view();
   for (int b = 0; b < B; ++b)
     for (int c = 0; c < C; ++c)

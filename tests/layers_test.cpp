@@ -276,6 +276,86 @@ TEST_CASE("conv_transpose1d phase GEMMs equal the naive reference on GEMM-sized 
   }
 }
 
+TEST_CASE("long sequences and interleaved batches equal the naive reference") {
+  // Several 512-frame GEMM blocks per item, and the [T][B][C] order the encoder uses, where
+  // a stride-1 conv of the batch runs as one sequence with dilation d·B.
+  std::mt19937_64 rng(13);
+  struct Case {
+    ConvCase c;
+    Layout layout;
+  };
+  for (const Case& cs : {Case{{2, 8, 12, 1100, 3, 1, 2, 2, 2}, Layout::items},
+                         Case{{1, 8, 12, 1300, 4, 2, 1, 1, 1}, Layout::items},
+                         Case{{3, 8, 12, 400, 3, 1, 3, 3, 3}, Layout::interleaved},
+                         Case{{3, 8, 12, 400, 3, 1, 1, 1, 1}, Layout::interleaved},
+                         Case{{3, 8, 12, 401, 4, 2, 1, 1, 1}, Layout::interleaved},
+                         Case{{4, 12, 8, 300, 1, 1, 1, 0, 0}, Layout::interleaved}}) {
+    const ConvCase& cc = cs.c;
+    CAPTURE(cc.T);
+    CAPTURE(cc.k);
+    CAPTURE(cc.stride);
+    CAPTURE(cc.dilation);
+    CAPTURE(int(cs.layout));
+    const Conv1dShape s{cc.ci, cc.co, cc.k, cc.stride, cc.dilation, cc.pl, cc.pr};
+    const int To = s.out_frames(cc.T);
+    const reference::ConvDims n{cc.B, cc.ci, cc.co, cc.T, To, cc.k, cc.stride, cc.dilation, cc.pl};
+    ParamSlab slab;
+    Conv1d conv(slab, "c", s);
+    conv.init(slab, rng);
+    const std::vector<float> xt = random_vector(std::size_t(cc.B) * cc.ci * cc.T, rng);
+    const std::vector<float> dyt = random_vector(std::size_t(cc.B) * cc.co * To, rng);
+    const std::vector<float> wt = conv_weight_to_torch(slab.value(conv.w).data(), cc.co, cc.ci, cc.k);
+    const std::vector<float> bt(slab.value(conv.b).begin(), slab.value(conv.b).end());
+    PaddedTensor x, y, dy, dx;
+    from_torch(x, xt, cc.B, cc.ci, cc.T, s.margin(), cs.layout);
+    y.reshape(cc.B, cc.co, To, 0, cs.layout);
+    conv.forward(y.view(), x.view(), slab.view());
+    check_close("y", to_torch(y.view()), reference::conv1d_forward(n, xt, wt, bt), 1e-4, 1e-4);
+    from_torch(dy, dyt, cc.B, cc.co, To, 0, cs.layout);
+    dx.reshape(cc.B, cc.ci, cc.T, s.margin(), cs.layout);
+    dx.zero();
+    const SeqView dxv = dx.view();
+    conv.backward(&dxv, dy.view(), x.view(), slab.view());
+    std::vector<double> rdx, rdw, rdb;
+    reference::conv1d_backward(n, dyt, xt, wt, rdx, rdw, rdb);
+    check_close("dx", to_torch(dx.view()), rdx, 1e-4, 1e-4);
+    check_close("dw", conv_weight_to_torch(slab.grad(conv.w).data(), cc.co, cc.ci, cc.k), rdw, 1e-3, 1e-4);
+    check_close("db", to_double(slab.grad(conv.b)), rdb, 1e-3, 1e-4);
+  }
+  // ConvTranspose1d and the residual unit on an interleaved batch equal the items layout.
+  const ConvTranspose1dShape ts{8, 6, 4, 2, 1, 0};
+  ParamSlab slab;
+  ConvTranspose1d convt(slab, "t", ts);
+  ResidualUnit unit(slab, "u", 6, 3);
+  convt.init(slab, rng);
+  unit.init(slab, rng);
+  const int B = 3, T = 40;
+  const std::vector<float> xt = random_vector(std::size_t(B) * 8 * T, rng);
+  const std::vector<float> dyt = random_vector(std::size_t(B) * 6 * 2 * T, rng);
+  std::vector<std::vector<float>> outs, grads;
+  for (Layout lay : {Layout::items, Layout::interleaved}) {
+    slab.zero_grad();
+    PaddedTensor x, h, d, dx;
+    from_torch(x, xt, B, 8, T, ts.margin(), lay);
+    h.reshape(B, 6, 2 * T, 0, lay);
+    convt.forward(h.view(), x.view(), slab.view());
+    ResidualUnit::Acts acts;
+    ResidualUnit::Scratch scratch;
+    unit.forward(h.view(), h.view(), acts, slab.view());
+    outs.push_back(to_torch(h.view()));
+    from_torch(d, dyt, B, 6, 2 * T, 0, lay);
+    unit.backward(d.view(), d.view(), acts, scratch, slab.view());
+    dx.reshape(B, 8, T, ts.margin(), lay);
+    dx.zero();
+    const SeqView dxv = dx.view();
+    convt.backward(&dxv, d.view(), x.view(), slab.view());
+    grads.push_back(to_torch(dx.view()));
+    grads.back().insert(grads.back().end(), slab.grads(), slab.grads() + slab.count());
+  }
+  check_close("convT + unit y, interleaved vs items", outs[1], outs[0], 1e-5, 1e-5);
+  check_close("convT + unit grads, interleaved vs items", grads[1], grads[0], 1e-4, 1e-4);
+}
+
 TEST_CASE("conv1d output length follows torch's formula") {
   // torch.nn.Conv1d docs: L_out = ⌊(L_in + 2·padding − dilation·(k − 1) − 1) / stride⌋ + 1.
   CHECK(Conv1dShape::padded(1, 1, 4, 2, 1).out_frames(200) == 100);

@@ -6,6 +6,7 @@
 #include <Eigen/Dense>
 #include <cmath>
 #include <fstream>
+#include <stdexcept>
 #include <string>
 #include <vector>
 
@@ -151,6 +152,20 @@ TEST_CASE("sparse apply, its transpose and the pseudo-inverse agree with dense a
   CHECK(fb.lipschitz() == doctest::Approx(s * s).epsilon(1e-9));
 }
 
+TEST_CASE("pseudo-inverse of a rank-deficient filterbank (empty bands)") {
+  // 40 mels over 33 bins: narrow low bands fall between bins and are empty (librosa warns of
+  // the same), so M has zero rows; Penrose's conditions (1955) must still hold.
+  const MelFilterbank fb(16000, 64, 40, 0.0, 8000.0, MelScale::slaney, true);
+  int empty = 0;
+  for (int m = 0; m < fb.n_mels(); ++m) empty += fb.band_size(m) == 0;
+  CHECK(empty > 0);
+  const Eigen::MatrixXd W = fb.dense().cast<double>(), P = fb.pinv().cast<double>();
+  CHECK((W * P * W - W).norm() <= 1e-5 * W.norm());
+  CHECK((P * W * P - P).norm() <= 1e-5 * P.norm());
+  CHECK(((P * W).transpose() - P * W).norm() <= 1e-5 * (P * W).norm());
+  CHECK(((W * P).transpose() - W * P).norm() <= 1e-5 * (W * P).norm());
+}
+
 TEST_CASE("log-mel is the log of the floored mel of the stft magnitude") {
   // Definition (DESIGN.md front end): ln(max(M·|X|, floor)), natural log, magnitude not power.
   AudioConfig cfg;
@@ -169,6 +184,16 @@ TEST_CASE("log-mel is the log of the floored mel of the stft magnitude") {
   CHECK((feats - ref).cwiseAbs().maxCoeff() <= 1e-4f);
   CHECK(feats.minCoeff() == doctest::Approx(std::log(1e-5)).epsilon(1e-6));  // silent half hits the floor
   CHECK((log_mel(cfg, x) - feats).cwiseAbs().maxCoeff() == 0.0f);
+}
+
+TEST_CASE("a filterbank built without its inverse has the same filters and refuses pinv") {
+  AudioConfig cfg;
+  const MelFilterbank full(cfg), lean(cfg, MelFilterbank::Inverse::without);
+  CHECK(full.has_inverse());
+  CHECK(!lean.has_inverse());
+  CHECK((full.dense() - lean.dense()).cwiseAbs().maxCoeff() == 0.0f);
+  CHECK_THROWS_AS((void)lean.pinv(), std::logic_error);
+  CHECK_THROWS_AS((void)lean.lipschitz(), std::logic_error);
 }
 
 TEST_CASE("bad filterbank settings are user errors") {

@@ -6,6 +6,7 @@
 
 #include <doctest/doctest.h>
 
+#include <algorithm>
 #include <atomic>
 #include <cmath>
 #include <cstdlib>
@@ -80,6 +81,29 @@ TEST_CASE("a trained residual stack on Gaussian data: distortion falls with dept
   // is 0.3634 per dimension (Max 1960, Table I; value from memory): a trained stage must not be
   // worse (+3% for held-out sampling and a local optimum).
   CHECK(mse_per_dim(rvq, held_out, 1) <= 0.3634 * 1.03);
+}
+
+TEST_CASE("init_from subsamples, fills the restart pools and resets the EMA state") {
+  CodebookConfig cfg = small_config(3, 16, 4);
+  cfg.kmeans_init_vectors = 1000;
+  cfg.restart_pool = 256;
+  const Eigen::MatrixXf z = gaussian(4, 5000, 111);
+  ResidualCodebooks a(cfg, 64), b(cfg, 64);
+  a.init_from(z);
+  const std::vector<Eigen::MatrixXf> batches = {z.leftCols(2000), z.rightCols(3000)};
+  b.init_from(batches);
+  // Same seed, same data side by side: the same codebooks.
+  CHECK(std::equal(a.codebooks().begin(), a.codebooks().end(), b.codebooks().begin()));
+  for (int s = 0; s < 3; ++s) {
+    CHECK(a.restart_pool_state()[s] == 256);
+    CHECK(a.stale_codes(s) == 0);
+  }
+  CHECK(std::all_of(a.ema_cluster_size().begin(), a.ema_cluster_size().end(), [](float v) { return v == 1.0f; }));
+  CHECK(std::equal(a.codebooks().begin(), a.codebooks().end(), a.ema_embed_sum().begin()));
+  // Every stage after the first quantises what is left, so its codes are smaller than stage 0's.
+  CHECK(a.stage_codebook(1).norm() < a.stage_codebook(0).norm());
+  CHECK_THROWS_WITH_AS(a.init_from(Eigen::MatrixXf(4, 0)),
+                       "codebook initialisation needs at least one latent vector, got 0", tessera::Error);
 }
 
 TEST_CASE("straight-through: with beta = 0 the gradient at z is the gradient at zq, bit for bit") {
@@ -358,11 +382,11 @@ TEST_CASE("errors a user can cause name the bad value") {
   CHECK_THROWS_WITH_AS(ResidualCodebooks{cfg}, "codebooks: codes must be in 1..32768, got 0", tessera::Error);
   cfg = small_config(3, 8, 4);
   cfg.p_full = 1.5;
-  CHECK_THROWS_WITH_AS(tessera::quant::validate(cfg), "codebooks: p_full must be in [0, 1], got 1.500000",
+  CHECK_THROWS_WITH_AS(tessera::quant::validate(cfg), "codebooks: p_full must be in [0, 1], got 1.5",
                        tessera::Error);
 }
 
-#if defined(__GLIBC__)
+#if defined(__GLIBC__) && !defined(__SANITIZE_ADDRESS__) && !defined(__SANITIZE_THREAD__)
 // Counts heap allocations of the whole program while `counting` is set. Interposes malloc
 // (operator new, Eigen and std::vector all end there) and forwards to glibc's own.
 extern "C" void* __libc_malloc(std::size_t);

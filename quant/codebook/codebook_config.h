@@ -31,7 +31,9 @@ struct CodebookConfig {
   // k-means++ initialisation (Arthur & Vassilvitskii 2007) from the first batches.
   int kmeans_init_batches = 8;      // batches the trainer collects before init_from()
   int kmeans_init_vectors = 16384;  // at most this many vectors per stage (random subsample)
-  int kmeans_iters = 20;            // Lloyd iterations after seeding (stops early on convergence)
+  // Lloyd iterations after seeding (stops early on convergence). Measured cost at 16384 x 128
+  // with K = 1024: ~0.13 s CPU per iteration (SSE2 build), ~0.04 s with TESSERA_NATIVE.
+  int kmeans_iters = 20;
 
   // Dead-code restart: a code unused for this many consecutive training steps of its stage
   // takes a random recent residual of that stage (common practice; the value is ours).

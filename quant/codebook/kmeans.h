@@ -12,9 +12,9 @@ namespace tessera::quant {
 // out[k] = ‖c_k‖² for the columns of c (D x K); out must hold K values.
 void column_sq_norms(const Eigen::Ref<const Eigen::MatrixXf>& c, Eigen::Ref<Eigen::VectorXf> out);
 
-// Nearest centre of each column by squared L2, ‖x‖² − 2·xᵀc + ‖c‖², the cross term as one
-// matrix product per chunk of columns (‖x‖² is the same for every k and is left out of the
-// argmin). Columns are split over a small persistent pool of threads. After the first call
+// Nearest centre of each column by squared L2, ‖x‖² − 2·xᵀc + ‖c‖², the cross term as a
+// matrix product (cᵀx, computed in cache-sized blocks; ‖x‖² is the same for every k and is
+// left out of the argmin). Columns are split over a small persistent pool of threads. After the first call
 // with a given K a call allocates nothing, Eigen's GEMM included (the products are cut small
 // enough for Eigen to pack them on the stack). Not thread-safe: one caller at a time.
 //   NearestSearch search(2);

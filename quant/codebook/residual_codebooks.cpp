@@ -6,6 +6,7 @@
 #include <algorithm>
 #include <cassert>
 #include <climits>
+#include <cstdio>
 #include <numeric>
 #include <string>
 
@@ -16,10 +17,17 @@ namespace {
 
 [[noreturn]] void bad(const std::string& what) { throw Error("codebooks: " + what); }
 
+std::string num(int v) { return std::to_string(v); }
+std::string num(double v) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%g", v);
+  return buf;
+}
+
 }  // namespace
 
 void validate(const CodebookConfig& c) {
-  auto s = [](auto v) { return std::to_string(v); };
+  auto s = [](auto v) { return num(v); };
   if (c.stages < 1) bad("stages must be at least 1, got " + s(c.stages));
   // Token files store int16 codes, so K <= 32768.
   if (c.codes < 1 || c.codes > 32768) bad("codes must be in 1..32768, got " + s(c.codes));

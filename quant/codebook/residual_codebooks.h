@@ -33,7 +33,8 @@
 // A train pass updates, after the search of each stage, that stage's EMA statistics and
 // codebook (EMA mode, as torch_reference.py's ema_update), its usage counters and its pool of
 // recent residuals, and at the end restarts dead codes. Scratch is sized for max_vectors and
-// grows once if a larger N arrives; after that a step allocates nothing of its own.
+// grows once if a larger N arrives; after that a step allocates nothing (tested). Not
+// thread-safe: encode() and forward() share the scratch and the search threads.
 #pragma once
 #include <Eigen/Core>
 #include <cstdint>

@@ -3,6 +3,7 @@
 // `=` would clear dst in an extra pass, so destinations are pre-set (bias) or accumulate.
 #pragma once
 #include <Eigen/Core>
+#include <cassert>
 
 #include "quant/tensor.h"
 
@@ -16,14 +17,17 @@ using CMapMat = Eigen::Map<const Mat, 0, Stride>;
 using MapRowMat = Eigen::Map<RowMat, 0, Stride>;
 using CMapRowMat = Eigen::Map<const RowMat, 0, Stride>;
 
-// `rows` values starting at frame t0 of item b, `cols` columns that start `step` frames
-// apart: column j is frames t0 + j·step ... (rows may span several consecutive frames,
-// so columns may overlap — fine for a GEMM operand that is only read).
+// `rows` values starting at frame t0 of item b, `cols` columns that start `step` time
+// steps apart: column j begins at frame t0 + j·step. rows > C spans the following
+// frames, which are the item's next time steps only if v.tstride == 1; such columns
+// overlap, which is fine for a GEMM operand that is only read.
 inline CMapMat frames(const CSeqView& v, int b, int t0, long rows, long cols, long step = 1) {
-  return {v.frame(b, t0), rows, cols, Stride(step * v.C)};
+  assert(rows <= v.C || v.tstride == 1);
+  return {v.frame(b, t0), rows, cols, Stride(step * v.tstride * v.C)};
 }
 inline MapMat frames(const SeqView& v, int b, int t0, long rows, long cols, long step = 1) {
-  return {v.frame(b, t0), rows, cols, Stride(step * v.C)};
+  assert(rows <= v.C || v.tstride == 1);
+  return {v.frame(b, t0), rows, cols, Stride(step * v.tstride * v.C)};
 }
 
 // Block j (C_out × C_in) of a weight stored row-major as (C_out, k, C_in).

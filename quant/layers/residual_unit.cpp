@@ -23,8 +23,9 @@ void ResidualUnit::init(ParamSlab& slab, std::mt19937_64& rng) const {
 
 void ResidualUnit::forward(const SeqView& y, const CSeqView& x, Acts& acts, const ParamView& p) const {
   assert(x.B == y.B && x.C == y.C && x.T == y.T && x.C == conv_dil.s.c_in);
-  acts.a1.reshape(x.B, x.C, x.T, conv_dil.s.margin());
-  acts.a2.reshape(x.B, x.C, x.T, 0);
+  const Layout lay = layout_of(x);
+  acts.a1.reshape(x.B, x.C, x.T, conv_dil.s.margin(), lay);
+  acts.a2.reshape(x.B, x.C, x.T, 0, lay);
   elu_forward(acts.a1.view(), x);
   conv_dil.forward(acts.a2.view(), acts.a1.view(), p, Epilogue::elu);
   if (y.data != x.data) copy_frames(y, x);
@@ -35,12 +36,12 @@ void ResidualUnit::backward(const SeqView& dx, const CSeqView& dy, const Acts& a
                             const ParamView& p) const {
   const CSeqView a1 = acts.a1.view(), a2 = acts.a2.view();
   assert(dy.B == a1.B && dy.C == a1.C && dy.T == a1.T && dx.B == dy.B && dx.T == dy.T);
-  scratch.g2.reshape(dy.B, dy.C, dy.T, 0);
+  scratch.g2.reshape(dy.B, dy.C, dy.T, 0, acts.a2.layout());
   scratch.g2.zero();
   const SeqView g2 = scratch.g2.view();
   conv_1x1.backward(&g2, dy, a2, p);
   elu_backward_inplace(g2, a2);
-  scratch.g1.reshape(dy.B, dy.C, dy.T, conv_dil.s.margin());
+  scratch.g1.reshape(dy.B, dy.C, dy.T, conv_dil.s.margin(), acts.a1.layout());
   scratch.g1.zero();
   const SeqView g1 = scratch.g1.view();
   conv_dil.backward(&g1, g2, a1, p);
