@@ -6,6 +6,7 @@
 #include <cstdio>
 #include <filesystem>
 #include <memory>
+#include <sstream>
 #include <unistd.h>
 
 #include <sndfile.h>
@@ -62,6 +63,16 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
   if (!compressed && !ec && double(sfinfo.frames) * sfinfo.channels > 8.0 * double(file_bytes) + 1e6)
     throw Error("audio file '" + path + "' claims more samples than it holds (damaged header?)");
 
+  // libsndfile shortens the data chunk of a cut file to what is there and notes it in its
+  // log ("data : 32000 (should be 200)"); a cut file is refused rather than half-read.
+  {
+    std::vector<char> log(8192, '\0');
+    sf_command(f.get(), SFC_GET_LOG_INFO, log.data(), int(log.size()) - 1);
+    std::istringstream lines(std::string(log.data()));
+    for (std::string line; std::getline(lines, line);)
+      if ((line.rfind("data", 0) == 0 || line.rfind("SSND", 0) == 0) && line.find("(should be") != std::string::npos)
+        throw Error("audio file '" + path + "' is truncated: its header promises more data than the file holds");
+  }
   if (info) {
     info->channels = sfinfo.channels;
     info->sample_rate = sfinfo.samplerate;

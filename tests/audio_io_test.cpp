@@ -163,8 +163,11 @@ TEST_CASE("bad files are refused with a message naming the file") {
     std::ifstream in(dir / "whole.wav", std::ios::binary);
     std::string bytes((std::istreambuf_iterator<char>(in)), {});
     std::ofstream(dir / "cut.wav", std::ios::binary).write(bytes.data(), 30);
+    std::ofstream(dir / "cut-data.wav", std::ios::binary).write(bytes.data(), 44 + 200);
   }
   CHECK(message_of(dir / "cut.wav").find("cut.wav") != std::string::npos);
+  // Cut inside the samples: refused, not half-read.
+  CHECK(message_of(dir / "cut-data.wav").find("truncated") != std::string::npos);
 
   std::vector<float> nan(1000, std::nanf(""));
   write_with_sndfile(dir / "nan.wav", SF_FORMAT_WAV | SF_FORMAT_FLOAT, 1, 16000, nan);
