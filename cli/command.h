@@ -15,6 +15,8 @@ using Run = std::function<int()>;
 Run register_resynth(CLI::App& app);
 Run register_train(CLI::App& app);
 Run register_inspect(CLI::App& app);
+Run register_encode(CLI::App& app);
+Run register_decode(CLI::App& app);
 
 // Settings shared by every command that reads an experiment file.
 struct ConfigArgs {

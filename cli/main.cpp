@@ -25,6 +25,8 @@ int main(int argc, char** argv) {
   add(register_resynth);
   add(register_train);
   add(register_inspect);
+  add(register_encode);
+  add(register_decode);
 
   try {
     app.parse(argc, argv);

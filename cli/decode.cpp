@@ -1,0 +1,98 @@
+// decode.cpp — `tessera decode --model MODEL TOKENS.npy -o OUT.wav [--depth d] [--iters N]`:
+// codes → decoder → log-mel → mel inversion → Griffin-Lim → WAV (peak-limited).
+#include <cstdio>
+#include <filesystem>
+
+#include "audio/audio_io.h"
+#include "audio/error.h"
+#include "audio/mel_inverse.h"
+#include "cli/command.h"
+#include "cli/output_path.h"
+#include "cli/progress.h"
+#include "quant/checkpoint.h"
+#include "quant/npy.h"
+#include "quant/token_manifest.h"
+
+namespace tessera::cli {
+namespace fs = std::filesystem;
+namespace {
+
+struct DecodeArgs {
+  std::string model, tokens, output;
+  int depth = 0, iters = -1, jobs = 0;
+};
+
+// The manifest line describing `tokens`, searched in its folder and the folders above.
+bool find_manifest_entry(const fs::path& tokens, quant::ManifestEntry& out) {
+  std::error_code ec;
+  const fs::path abs = fs::weakly_canonical(tokens, ec);
+  for (fs::path dir = abs.parent_path(); !dir.empty(); dir = dir.parent_path()) {
+    for (const auto& e : fs::directory_iterator(dir, ec)) {
+      const std::string name = e.path().filename().string();
+      if (!name.starts_with("manifest") || e.path().extension() != ".jsonl") continue;
+      int bad = 0;
+      for (const auto& m : quant::read_manifest(e.path().string(), &bad))
+        if (fs::weakly_canonical(dir / m.tokens, ec) == abs) { out = m; return true; }
+    }
+    if (dir == dir.parent_path()) break;
+  }
+  return false;
+}
+
+int run_decode(const DecodeArgs& a) {
+  check_output_path(a.output, {a.tokens, a.model});
+  quant::ModelInfo info;
+  auto tok = quant::load_model(a.model, a.jobs, &info);
+  const quant::ExperimentConfig& cfg = tok->config();
+  const quant::Int16Matrix m = quant::read_npy_i16(a.tokens);
+  if (m.cols < 1 || m.rows < 1) throw Error("'" + a.tokens + "' holds no codes (shape [" + std::to_string(m.rows) +
+                                          ", " + std::to_string(m.cols) + "])");
+  const int depth = a.depth == 0 ? int(m.cols) : a.depth;
+  if (depth < 1 || depth > m.cols)
+    throw Error("--depth " + std::to_string(a.depth) + ": '" + a.tokens + "' holds " + std::to_string(m.cols) + " stages");
+  if (depth > cfg.codebooks.stages)
+    throw Error("'" + a.tokens + "' has depth " + std::to_string(m.cols) + " but the model has " +
+                std::to_string(cfg.codebooks.stages) + " stages");
+  quant::ManifestEntry entry;
+  if (find_manifest_entry(a.tokens, entry) && entry.model_id != info.model_id)
+    throw Error("'" + a.tokens + "' was made by model " + entry.model_id + ", not by '" + a.model + "' (" +
+                info.model_id + ")");
+  Eigen::MatrixXi codes(m.rows, depth);
+  for (std::int64_t r = 0; r < m.rows; ++r)
+    for (int c = 0; c < depth; ++c) {
+      const int v = m.data[std::size_t(r * m.cols + c)];
+      if (v < 0 || v >= cfg.codebooks.codes)
+        throw Error("'" + a.tokens + "': code " + std::to_string(v) + " at frame " + std::to_string(r) + ", stage " +
+                    std::to_string(c + 1) + " is outside 0.." + std::to_string(cfg.codebooks.codes - 1));
+      codes(r, c) = v;
+    }
+
+  audio::AudioConfig acfg = cfg.audio;
+  if (a.iters >= 0) acfg.griffin_lim_iters = a.iters;
+  const Eigen::MatrixXf mel = tok->decode(codes, depth);
+  Progress bar("decode", acfg.griffin_lim_iters, "it/s");
+  const std::vector<float> y = audio::invert_log_mel(acfg, mel, 0, [&](int it, int) { bar.update(it); });
+  if (bar.elapsed() > 1.0) bar.finish();
+  const audio::SaveReport rep = audio::save_wav(a.output, y, acfg.sample_rate, audio::SampleFormat::pcm16,
+                                                acfg.output_peak_dbfs);
+  warn_about_level(rep, a.output);
+  std::printf("decoded   %s: %lld code frames at depth %d (%.2f s) -> %s\n", a.tokens.c_str(), (long long)m.rows, depth,
+              double(y.size()) / acfg.sample_rate, a.output.c_str());
+  return 0;
+}
+
+}  // namespace
+
+Run register_decode(CLI::App& app) {
+  auto a = std::make_shared<DecodeArgs>();
+  CLI::App* cmd = app.add_subcommand("decode", "turn a code file back into audio (decoder, then Griffin-Lim)");
+  cmd->add_option("--model", a->model, "model.safetensors")->required()->check(CLI::ExistingFile);
+  cmd->add_option("tokens", a->tokens, ".npy code file (int16 [frames, depth])")->required()->check(CLI::ExistingFile);
+  cmd->add_option("-o,--output", a->output, "output WAV")->required();
+  cmd->add_option("--depth", a->depth, "stages to use (default: all in the file)");
+  cmd->add_option("--iters", a->iters, "Griffin-Lim iterations (default: the model's audio.griffin_lim_iters)");
+  cmd->add_option("--jobs", a->jobs, "threads (default: all cores)");
+  return [a] { return run_decode(*a); };
+}
+
+}  // namespace tessera::cli

@@ -1,0 +1,182 @@
+// encode.cpp — `tessera encode --model MODEL INPUT... --out DIR`: audio → code files.
+// One .npy (int16 [frames, depth]) per input mirroring the input tree, one manifest line
+// each; resumable, shardable, atomic.
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <set>
+
+#include "audio/atomic_file.h"
+#include "audio/audio_io.h"
+#include "audio/error.h"
+#include "audio/file_list.h"
+#include "audio/log_mel.h"
+#include "cli/command.h"
+#include "cli/progress.h"
+#include "quant/checkpoint.h"
+#include "quant/npy.h"
+#include "quant/token_manifest.h"
+
+namespace tessera::cli {
+namespace fs = std::filesystem;
+namespace {
+
+struct EncodeArgs {
+  std::string model, out, shard, flat;
+  std::vector<std::string> inputs;
+  int depth = 0, jobs = 0;
+};
+
+void parse_shard(const std::string& s, int& index, int& count) {
+  index = 1, count = 1;
+  if (s.empty()) return;
+  const auto slash = s.find('/');
+  try {
+    if (slash == std::string::npos) throw std::invalid_argument("");
+    std::size_t a = 0, b = 0;
+    index = std::stoi(s.substr(0, slash), &a);
+    count = std::stoi(s.substr(slash + 1), &b);
+    if (a != slash || b != s.size() - slash - 1) throw std::invalid_argument("");
+  } catch (const std::exception&) {
+    throw Error("--shard '" + s + "': expected i/n, e.g. 3/8");
+  }
+  if (count < 1 || index < 1 || index > count)
+    throw Error("--shard '" + s + "': expected 1 <= i <= n");
+}
+
+std::string tokens_path_for(const std::string& relative) {
+  fs::path p(relative);
+  p.replace_extension(".npy");
+  return p.generic_string();
+}
+
+int run_encode(const EncodeArgs& a) {
+  int shard = 1, shards = 1;
+  parse_shard(a.shard, shard, shards);
+  quant::ModelInfo info;
+  auto tok = quant::load_model(a.model, a.jobs, &info);
+  const quant::ExperimentConfig& cfg = tok->config();
+  const int depth = a.depth == 0 ? cfg.codebooks.stages : a.depth;
+  if (depth < 1 || depth > cfg.codebooks.stages)
+    throw Error("--depth " + std::to_string(a.depth) + ": the model has " + std::to_string(cfg.codebooks.stages) +
+                " stages");
+
+  std::vector<audio::InputFile> all = audio::expand_inputs(a.inputs);
+  std::vector<audio::InputFile> files;
+  for (std::size_t i = 0; i < all.size(); ++i)
+    if (int(i % std::size_t(shards)) == shard - 1) files.push_back(all[i]);
+  // Two inputs must not land on one token file (a.wav and a.flac side by side).
+  std::map<std::string, std::string> owner;
+  for (const auto& f : files) {
+    const std::string t = tokens_path_for(f.relative);
+    auto [it, fresh] = owner.emplace(t, f.path);
+    if (!fresh) throw Error("'" + f.path + "' and '" + it->second + "' would both write '" + t + "'");
+  }
+
+  fs::create_directories(a.out);
+  const std::string manifest = (fs::path(a.out) / (shards == 1 ? std::string("manifest.jsonl")
+                                                               : "manifest.shard-" + std::to_string(shard) + "-of-" +
+                                                                     std::to_string(shards) + ".jsonl"))
+                                   .string();
+  // Resume: keep entries whose token file is complete and made by this model at this depth.
+  int bad = 0;
+  std::map<std::string, quant::ManifestEntry> done;
+  for (auto& e : quant::read_manifest(manifest, &bad)) {
+    if (e.model_id != info.model_id || e.depth != depth) continue;
+    try {
+      const quant::Int16Matrix m = quant::read_npy_i16((fs::path(a.out) / e.tokens).string());
+      if (m.rows == e.frames && m.cols == e.depth) done[e.tokens] = e;
+    } catch (const Error&) {
+    }
+  }
+  if (bad) std::fprintf(stderr, "note: %d damaged manifest line(s) dropped (an interrupted run?)\n", bad);
+  {
+    std::string kept;
+    for (const auto& f : files)
+      if (auto it = done.find(tokens_path_for(f.relative)); it != done.end()) kept += quant::to_json_line(it->second) + "\n";
+    write_file_atomic(manifest, kept);
+  }
+  std::ofstream log(manifest, std::ios::app);
+  std::unique_ptr<std::ofstream> flat;
+  if (!a.flat.empty()) flat = std::make_unique<std::ofstream>(a.flat + ".tmp");
+
+  const double code_rate = cfg.code_rate();
+  const int K = cfg.codebooks.codes;
+  audio::LogMel lm(cfg.audio);
+  Progress bar("encode", double(files.size()), "files/s");
+  double audio_s = 0, busy_s = 0;
+  std::size_t skipped = 0, n = 0;
+  const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
+  for (const auto& f : files) {
+    const std::string rel = tokens_path_for(f.relative);
+    const fs::path out = fs::path(a.out) / rel;
+    Eigen::MatrixXi codes;
+    if (auto it = done.find(rel); it != done.end()) {
+      ++skipped;
+      if (flat) {
+        const quant::Int16Matrix m = quant::read_npy_i16(out.string());
+        codes.resize(m.rows, m.cols);
+        for (std::int64_t r = 0; r < m.rows; ++r)
+          for (std::int64_t c = 0; c < m.cols; ++c) codes(r, c) = m.data[std::size_t(r * m.cols + c)];
+      }
+    } else {
+      const auto t0 = std::chrono::steady_clock::now();
+      const audio::Audio au = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm);
+      codes = tok->encode(lm.compute(au.samples), depth);
+      std::vector<std::int16_t> rows(std::size_t(codes.size()));
+      for (Eigen::Index r = 0; r < codes.rows(); ++r)
+        for (int c = 0; c < depth; ++c) rows[std::size_t(r) * depth + c] = std::int16_t(codes(r, c));
+      fs::create_directories(out.parent_path());
+      quant::write_npy_i16(out.string(), rows.data(), codes.rows(), depth);
+      quant::ManifestEntry e{f.path, rel, au.duration(), codes.rows(), depth, cfg.audio.sample_rate,
+                             code_rate, info.model_id, K};
+      log << quant::to_json_line(e) << "\n" << std::flush;
+      audio_s += au.duration();
+      busy_s += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    }
+    if (flat) {
+      // Stages interleaved frame by frame; stage s offset by s·K, one line per file.
+      std::string line;
+      for (Eigen::Index r = 0; r < codes.rows(); ++r)
+        for (Eigen::Index c = 0; c < codes.cols(); ++c)
+          line += (line.empty() ? "" : " ") + std::to_string(codes(r, c) + int(c) * K);
+      *flat << line << "\n";
+    }
+    ++n;
+    char extra[128];
+    std::snprintf(extra, sizeof extra, "  %.2f h audio  %.0fx real time", audio_s / 3600, busy_s > 0 ? audio_s / busy_s : 0);
+    bar.update(double(n), extra);
+  }
+  char extra[128];
+  std::snprintf(extra, sizeof extra, "  %.2f h audio  %.0fx real time", audio_s / 3600, busy_s > 0 ? audio_s / busy_s : 0);
+  bar.finish(extra);
+  if (flat) {
+    flat->close();
+    if (!*flat) throw Error("cannot write '" + a.flat + "'");
+    fs::rename(a.flat + ".tmp", a.flat);
+  }
+  std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\nmanifest  %s\n", files.size() - skipped,
+              skipped, depth, a.out.c_str(), manifest.c_str());
+  return 0;
+}
+
+}  // namespace
+
+Run register_encode(CLI::App& app) {
+  auto a = std::make_shared<EncodeArgs>();
+  CLI::App* cmd = app.add_subcommand("encode", "tokenize audio files, folders or list files into .npy code files");
+  cmd->add_option("--model", a->model, "model.safetensors")->required()->check(CLI::ExistingFile);
+  cmd->add_option("inputs", a->inputs, "audio files, folders (recursive) or list files")->required();
+  cmd->add_option("-o,--out", a->out, "output folder (mirrors the input tree, plus manifest.jsonl)")->required();
+  cmd->add_option("--depth", a->depth, "stages to keep (default: all)");
+  cmd->add_option("--shard", a->shard, "take every n-th file starting at the i-th: i/n");
+  cmd->add_option("--jobs", a->jobs, "threads (default: all cores)");
+  cmd->add_option("--flat", a->flat, "also write one line of integer tokens per file (stage s offset by s*K)");
+  return [a] { return run_encode(*a); };
+}
+
+}  // namespace tessera::cli
