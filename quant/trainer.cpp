@@ -12,7 +12,6 @@
 #include "audio/atomic_file.h"
 #include "audio/error.h"
 #include "quant/checkpoint.h"
-#include "quant/grad_clip.h"
 #include "quant/safetensors.h"
 
 namespace tessera::quant {
@@ -21,16 +20,6 @@ namespace {
 
 constexpr const char* kStateFormat = "tessera-train-state";
 constexpr int kStateVersion = 1;
-
-AdamConfig adam_config(const TrainConfig& t) {
-  AdamConfig a;
-  a.beta1 = t.beta1;
-  a.beta2 = t.beta2;
-  a.eps = t.adam_epsilon;
-  a.weight_decay = t.weight_decay;
-  a.decoupled = true;
-  return a;
-}
 
 std::string rng_text(const std::mt19937_64& rng) {
   std::ostringstream s;
@@ -66,7 +55,6 @@ Trainer::Trainer(const ExperimentConfig& cfg, std::string run_dir,
                  const std::function<void(std::size_t, std::size_t)>& load_progress)
     : cfg_(cfg),
       dir_(std::move(run_dir)),
-      adam_(0, adam_config(cfg.train)),
       schedule_(cfg.train.learning_rate, cfg.train.warmup_steps, cfg.train.steps,
                 cfg.train.learning_rate * cfg.train.min_lr_ratio),
       rng_(std::uint64_t(cfg.train.seed)) {
@@ -78,9 +66,7 @@ Trainer::Trainer(const ExperimentConfig& cfg, std::string run_dir,
   tok_ = std::make_unique<Tokenizer>(cfg_, t.threads, t.batch_size * L);
   tok_->init(std::uint64_t(t.seed));
   tok_->stats() = band_stats(corpus_.train);
-  adam_ = Adam(tok_->slab().count(), adam_config(t));
-  if (cfg_.codebooks.learning == CodebookConfig::Learning::loss)
-    codebook_adam_ = std::make_unique<Adam>(tok_->codebooks().codebooks().size(), adam_config(t));
+  step_fn_ = std::make_unique<TrainStep>(*tok_, t);
   train_sampler_ = std::make_unique<SegmentSampler>(corpus_.train, t.segment_frames);
   val_sampler_ = std::make_unique<SegmentSampler>(corpus_.validation.empty() ? corpus_.train : corpus_.validation,
                                                   t.segment_frames);
@@ -106,44 +92,6 @@ void Trainer::kmeans_init() {
     batches.emplace_back(z_.all());
   }
   tok_->codebooks().init_from(std::span<const Eigen::MatrixXf>(batches));
-}
-
-double Trainer::train_step(int depth, double& recon, double& commitment) {
-  Tokenizer& m = *tok_;
-  ParamSlab& slab = m.slab();
-  ResidualCodebooks& rvq = m.codebooks();
-  const bool loss_mode = cfg_.codebooks.learning == CodebookConfig::Learning::loss;
-  slab.zero_grad();
-  if (loss_mode) rvq.zero_grad();
-
-  m.encoder().forward(x_, z_, slab, /*train=*/true);
-  zq_.resize(z_.B(), z_.C(), z_.T());
-  const QuantLosses q = rvq.forward(z_.all(), depth, zq_.all(), ResidualCodebooks::Pass::train);
-  m.decoder().forward(zq_, y_, slab, /*train=*/true);
-
-  // Reconstruction loss on normalised log-mel and its gradient (the seed of backward).
-  const double n = double(x_.size());
-  const float l1 = float(cfg_.train.l1_weight / n), l2 = float(2.0 * cfg_.train.l2_weight / n);
-  dy_.resize(y_.B(), y_.C(), y_.T());
-  double sum_abs = 0, sum_sq = 0;
-  const float* y = y_.data();
-  const float* x = x_.data();
-  float* dy = dy_.data();
-  for (std::size_t i = 0; i < x_.size(); ++i) {
-    const float e = y[i] - x[i];
-    sum_abs += std::fabs(e);
-    sum_sq += double(e) * e;
-    dy[i] = l1 * float((e > 0) - (e < 0)) + l2 * e;
-  }
-  recon = cfg_.train.l1_weight * sum_abs / n + cfg_.train.l2_weight * sum_sq / n;
-  commitment = q.commitment;
-
-  m.decoder().backward(dy_, dzq_, slab);
-  dz_.resize(z_.B(), z_.C(), z_.T());
-  dz_.zero();
-  rvq.backward(dzq_.all(), dz_.all(), 1.0f, loss_mode ? 1.0f : 0.0f);
-  m.encoder().backward(dz_, slab);
-  return recon + q.commitment + (loss_mode ? q.codebook : 0.0);
 }
 
 ValidationReport Trainer::validate() {
@@ -217,27 +165,20 @@ void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const 
     if (stop && stop->load()) break;
     draw_batch();
     const int depth = draw_depth(cfg_.codebooks, rng_);
-    double recon = 0, commit = 0;
-    const double loss = train_step(depth, recon, commit);
-    if (!std::isfinite(loss))
-      throw Error("training diverged at step " + std::to_string(step_ + 1) + " (loss is " + std::to_string(loss) +
-                  "); lower train.learning_rate or check the corpus");
-    ParamSlab& slab = tok_->slab();
-    const double gn = t.grad_clip > 0 ? clip_grad_norm(slab.grads(), slab.count(), t.grad_clip)
-                                      : grad_norm(slab.grads(), slab.count());
-    if (!std::isfinite(gn))
-      throw Error("training diverged at step " + std::to_string(step_ + 1) +
-                  " (the gradient norm is not finite); lower train.learning_rate or check the corpus");
     const double lr = schedule_.at(step_);
-    adam_.step(slab.params(), slab.grads(), float(lr));
-    if (codebook_adam_)
-      codebook_adam_->step(tok_->codebooks().codebooks().data(), tok_->codebooks().codebook_grads().data(), float(lr));
+    StepResult sr;
+    try {
+      sr = step_fn_->run(x_, depth, lr);
+    } catch (const Error& e) {
+      throw Error("step " + std::to_string(step_ + 1) + ": " + e.what());
+    }
     ++step_;
-    since_log_loss += loss, since_log_recon += recon, since_log_commit += commit, ++since_log;
+    since_log_loss += sr.loss, since_log_recon += sr.recon, since_log_commit += sr.commitment, ++since_log;
 
     const double elapsed = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     r.step = step_;
-    r.loss = loss, r.recon = recon, r.commitment = commit, r.lr = lr, r.grad_norm = gn, r.depth = depth;
+    r.loss = sr.loss, r.recon = sr.recon, r.commitment = sr.commitment, r.grad_norm = sr.grad_norm;
+    r.lr = lr, r.depth = depth;
     r.steps_per_s = elapsed > 0 ? double(step_ - first) / elapsed : 0;
     r.audio_s_per_s = r.steps_per_s * t.batch_size * t.segment_frames / cfg_.audio.frame_rate();
     r.eta_s = r.steps_per_s > 0 ? double(t.steps - step_) / r.steps_per_s : 0;
@@ -268,14 +209,15 @@ void Trainer::checkpoint() {
   ResidualCodebooks& rvq = tok_->codebooks();
   const CodebookConfig& c = cfg_.codebooks;
   SafetensorsWriter w;
-  const auto n = std::int64_t(adam_.size());
-  w.add<float>("adam.m", {n}, adam_.m().data());
-  w.add<float>("adam.v", {n}, adam_.v().data());
-  if (codebook_adam_) {
-    const auto nc = std::int64_t(codebook_adam_->size());
-    w.add<float>("codebook_adam.m", {nc}, codebook_adam_->m().data());
-    w.add<float>("codebook_adam.v", {nc}, codebook_adam_->v().data());
-    w.set_metadata("codebook_adam_t", std::to_string(codebook_adam_->steps()));
+  const Adam& adam = step_fn_->adam();
+  const auto n = std::int64_t(adam.size());
+  w.add<float>("adam.m", {n}, adam.m().data());
+  w.add<float>("adam.v", {n}, adam.v().data());
+  if (const Adam* ca = step_fn_->codebook_adam()) {
+    const auto nc = std::int64_t(ca->size());
+    w.add<float>("codebook_adam.m", {nc}, ca->m().data());
+    w.add<float>("codebook_adam.v", {nc}, ca->v().data());
+    w.set_metadata("codebook_adam_t", std::to_string(ca->steps()));
   }
   w.add<float>("ema.cluster_size", {c.stages, c.codes}, rvq.ema_cluster_size().data());
   w.add<float>("ema.embed_sum", {c.stages, c.codes, c.dim}, rvq.ema_embed_sum().data());
@@ -287,7 +229,7 @@ void Trainer::checkpoint() {
   w.set_metadata("format_version", std::to_string(kStateVersion));
   w.set_metadata("model_id", id);
   w.set_metadata("step", std::to_string(step_));
-  w.set_metadata("adam_t", std::to_string(adam_.steps()));
+  w.set_metadata("adam_t", std::to_string(adam.steps()));
   w.set_metadata("rng", rng_text(rng_));
   w.set_metadata("codebook_rng", rng_text(rvq.rng()));
   w.set_metadata("validation_loss", std::to_string(last_val_loss_));
@@ -315,12 +257,12 @@ void Trainer::resume() {
   tok_ = std::move(loaded);
   ResidualCodebooks& rvq = tok_->codebooks();
   const CodebookConfig& c = cfg_.codebooks;
+  step_fn_->rebind(*tok_);
   const auto n = std::int64_t(tok_->slab().count());
-  adam_ = Adam(std::size_t(n), adam_config(cfg_.train));
-  adam_.restore(parse_int(r, "adam_t"), r.get<float>("adam.m", {n}), r.get<float>("adam.v", {n}));
-  if (codebook_adam_) {
+  step_fn_->adam().restore(parse_int(r, "adam_t"), r.get<float>("adam.m", {n}), r.get<float>("adam.v", {n}));
+  if (Adam* ca = step_fn_->codebook_adam()) {
     const auto nc = std::int64_t(rvq.codebooks().size());
-    codebook_adam_->restore(parse_int(r, "codebook_adam_t"), r.get<float>("codebook_adam.m", {nc}),
+    ca->restore(parse_int(r, "codebook_adam_t"), r.get<float>("codebook_adam.m", {nc}),
                             r.get<float>("codebook_adam.v", {nc}));
   }
   r.read_into<float>("ema.cluster_size", {c.stages, c.codes}, rvq.ema_cluster_size().data());

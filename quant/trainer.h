@@ -3,13 +3,8 @@
 // B batch, M mels, T frames per segment, L = T / hop code frames, D latent dims.
 //
 // One step (seeded; the same config, seed and threads give the same weights):
-//   x  = B random segments, normalised           [B, M, T]
-//   z  = encoder(x)                               [B, D, L]
-//   d  = draw_depth()                             stage dropout
-//   zq = codebooks(z, d)                          straight-through, commitment loss
-//   y  = decoder(zq)                              [B, M, T]
-//   loss = l1·mean|y − x| + l2·mean(y − x)² + commitment (+ codebook loss in loss mode)
-//   backward in reverse order; clip the global gradient norm; Adam with warm-up + cosine.
+//   x = B random segments, normalised [B, M, T];  d = draw_depth() (stage dropout);
+//   TrainStep::run(x, d, lr) (train_step.h) with the warm-up + cosine learning rate.
 #pragma once
 #include <atomic>
 #include <cstdint>
@@ -19,11 +14,11 @@
 #include <string>
 #include <vector>
 
-#include "quant/adam.h"
 #include "quant/corpus.h"
 #include "quant/experiment_config.h"
 #include "quant/lr_schedule.h"
 #include "quant/tokenizer.h"
+#include "quant/train_step.h"
 
 namespace tessera::quant {
 
@@ -69,7 +64,6 @@ class Trainer {
  private:
   void kmeans_init();
   void draw_batch();
-  double train_step(int depth, double& recon, double& commitment);
   void log_metrics(const StepReport& r);
   void log_validation(const ValidationReport& v);
 
@@ -78,12 +72,11 @@ class Trainer {
   Corpus corpus_;
   std::unique_ptr<Tokenizer> tok_;
   std::unique_ptr<SegmentSampler> train_sampler_, val_sampler_;
-  Adam adam_;
-  std::unique_ptr<Adam> codebook_adam_;  // loss-mode codebooks
+  std::unique_ptr<TrainStep> step_fn_;
   LrSchedule schedule_;
   std::mt19937_64 rng_;
   std::int64_t step_ = 0;
-  Tensor x_, z_, zq_, y_, dy_, dzq_, dz_;
+  Tensor x_, z_;
   double last_val_loss_ = -1, last_val_l1_ = -1;
 };
 

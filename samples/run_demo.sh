@@ -6,7 +6,7 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bash .ci/install-deps
-cmake -S . -B build -DCMAKE_BUILD_TYPE=Release >/dev/null
+cmake -S . -B build -DCMAKE_BUILD_TYPE=Release -DTESSERA_NATIVE=ON >/dev/null
 cmake --build build -j"$(nproc)" --target tessera
 mkdir -p demo
 text="The ten forty ferry to Gannet Holm will leave from pier three. Please have your tickets ready."
