@@ -17,6 +17,8 @@ Run register_train(CLI::App& app);
 Run register_inspect(CLI::App& app);
 Run register_encode(CLI::App& app);
 Run register_decode(CLI::App& app);
+Run register_ladder(CLI::App& app);
+Run register_evaluate(CLI::App& app);
 
 // Settings shared by every command that reads an experiment file.
 struct ConfigArgs {

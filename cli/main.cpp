@@ -27,6 +27,8 @@ int main(int argc, char** argv) {
   add(register_inspect);
   add(register_encode);
   add(register_decode);
+  add(register_ladder);
+  add(register_evaluate);
 
   try {
     app.parse(argc, argv);

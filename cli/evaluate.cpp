@@ -1,0 +1,141 @@
+// evaluate.cpp — `tessera evaluate --model MODEL INPUT... [--json] [--csv FILE]`: the
+// rate–distortion curve of a model over a corpus (per file, mean and median), with the
+// codebook use per stage.
+#include <algorithm>
+#include <cstdio>
+#include <fstream>
+
+#include "audio/atomic_file.h"
+#include "audio/audio_io.h"
+#include "audio/error.h"
+#include "audio/file_list.h"
+#include "cli/command.h"
+#include "cli/progress.h"
+#include "cli/rate_distortion.h"
+#include "quant/checkpoint.h"
+
+namespace tessera::cli {
+namespace {
+
+struct EvaluateArgs {
+  std::string model, csv;
+  std::vector<std::string> inputs;
+  bool json = false;
+  int jobs = 0;
+};
+
+double median(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  const std::size_t n = v.size();
+  return n == 0 ? 0 : n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+}
+
+double mean(const std::vector<double>& v) {
+  double s = 0;
+  for (double x : v) s += x;
+  return v.empty() ? 0 : s / double(v.size());
+}
+
+// Applies `reduce` field by field over the files' rows.
+std::vector<quant::DepthRow> reduce_rows(const std::vector<quant::Ladder>& all, double (*reduce)(std::vector<double>)) {
+  std::vector<quant::DepthRow> out = all.front().depths;
+  for (std::size_t d = 0; d < out.size(); ++d) {
+    auto field = [&](double quant::DepthRow::*f) {
+      std::vector<double> v;
+      for (const auto& l : all) v.push_back(l.depths[d].*f);
+      out[d].*f = reduce(v);
+    };
+    for (auto f : {&quant::DepthRow::entropy_kbps, &quant::DepthRow::feature_mel_l1, &quant::DepthRow::feature_mcd_db,
+                   &quant::DepthRow::mel_l1, &quant::DepthRow::mcd_db, &quant::DepthRow::spectral_convergence})
+      field(f);
+  }
+  return out;
+}
+
+quant::OracleRow reduce_oracle(const std::vector<quant::Ladder>& all, double (*reduce)(std::vector<double>)) {
+  quant::OracleRow o;
+  for (auto f : {&quant::OracleRow::mel_l1, &quant::OracleRow::mcd_db, &quant::OracleRow::spectral_convergence}) {
+    std::vector<double> v;
+    for (const auto& l : all) v.push_back(l.oracle.*f);
+    o.*f = reduce(v);
+  }
+  return o;
+}
+
+double mean_of(std::vector<double> v) { return mean(v); }
+
+int run_evaluate(const EvaluateArgs& a) {
+  quant::ModelInfo info;
+  auto tok = quant::load_model(a.model, a.jobs, &info);
+  const quant::ExperimentConfig& cfg = tok->config();
+  const std::vector<audio::InputFile> files = audio::expand_inputs(a.inputs);
+  const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
+  quant::UsageStats usage(cfg.codebooks.stages, cfg.codebooks.codes);
+  std::vector<quant::Ladder> all;
+  Progress bar("evaluate", double(files.size()), "files/s");
+  double audio_s = 0;
+  for (const auto& f : files) {
+    const audio::Audio in = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm);
+    all.push_back(quant::depth_ladder(*tok, in.samples, {}, /*keep_audio=*/false));
+    usage.add_codes(all.back().codes);
+    audio_s += in.duration();
+    char extra[64];
+    std::snprintf(extra, sizeof extra, "  %.1f min audio", audio_s / 60);
+    bar.update(double(all.size()), extra);
+  }
+  bar.finish();
+  std::vector<quant::StageUsage> stages;
+  for (int s = 0; s < cfg.codebooks.stages; ++s) stages.push_back(usage.stage(s));
+  // Entropy of the whole corpus's codes, not the mean of per-file entropies.
+  const auto means = reduce_rows(all, mean_of), medians = reduce_rows(all, median);
+  std::vector<quant::DepthRow> corpus_means = means;
+  for (auto& r : corpus_means) r.entropy_kbps = quant::entropy_kbps(stages, r.depth, cfg.code_rate());
+  const quant::OracleRow om = reduce_oracle(all, mean_of), omed = reduce_oracle(all, median);
+
+  if (!a.csv.empty()) {
+    std::string csv = "source,depth,kbps,entropy_kbps,feature_mel_l1,feature_mcd_db,mel_l1,mcd_db,spectral_convergence\n";
+    char line[512];
+    for (std::size_t i = 0; i < files.size(); ++i) {
+      for (const auto& r : all[i].depths) {
+        std::snprintf(line, sizeof line, ",%d,%.4f,%.4f,%.5f,%.4f,%.5f,%.4f,%.5f\n", r.depth, r.kbps, r.entropy_kbps,
+                      r.feature_mel_l1, r.feature_mcd_db, r.mel_l1, r.mcd_db, r.spectral_convergence);
+        csv += "\"" + files[i].path + "\"" + line;
+      }
+      const auto& o = all[i].oracle;
+      std::snprintf(line, sizeof line, ",oracle,,,,,%.5f,%.4f,%.5f\n", o.mel_l1, o.mcd_db, o.spectral_convergence);
+      csv += "\"" + files[i].path + "\"" + line;
+    }
+    write_file_atomic(a.csv, csv);
+  }
+  if (a.json) {
+    nlohmann::json j = rate_distortion_json(info.model_id, cfg.code_rate(), cfg.codebooks.codes, corpus_means, om, stages);
+    j["files"] = files.size();
+    j["audio_s"] = audio_s;
+    j["median"] = rate_distortion_json(info.model_id, cfg.code_rate(), cfg.codebooks.codes, medians, omed, stages)["depths"];
+    j["oracle_median"] = {{"mel_l1", omed.mel_l1}, {"mcd_db", omed.mcd_db}, {"spectral_convergence", omed.spectral_convergence}};
+    std::printf("%s\n", j.dump(2).c_str());
+    return 0;
+  }
+  std::printf("model %s on %zu files (%.1f min)\n\nmean over files (entropy over the whole corpus):\n\n%s\n"
+              "median over files:\n\n%s",
+              info.model_id.c_str(), files.size(), audio_s / 60,
+              rate_distortion_table(corpus_means, om, stages, cfg.codebooks.codes).c_str(),
+              rate_distortion_table(medians, omed, {}, cfg.codebooks.codes).c_str());
+  if (!a.csv.empty()) std::printf("\nper file: %s\n", a.csv.c_str());
+  return 0;
+}
+
+}  // namespace
+
+Run register_evaluate(CLI::App& app) {
+  auto a = std::make_shared<EvaluateArgs>();
+  CLI::App* cmd = app.add_subcommand("evaluate", "rate-distortion table of a model over a corpus, per depth and stage");
+  cmd->add_option("--model", a->model, "model.safetensors")->required()->check(CLI::ExistingFile);
+  cmd->add_option("inputs", a->inputs, "audio files, folders or list files")->required();
+  cmd->add_flag("--json", a->json, "print one JSON object (the schema in README.md)");
+  cmd->add_option("--csv", a->csv, "also write per-file rows to this CSV file");
+  cmd->add_option("--jobs", a->jobs, "threads (default: all cores)");
+  return [a] { return run_evaluate(*a); };
+}
+
+}  // namespace tessera::cli

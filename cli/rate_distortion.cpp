@@ -1,0 +1,49 @@
+// rate_distortion.cpp — JSON and Markdown forms of a rate–distortion result.
+#include "cli/rate_distortion.h"
+
+#include <cstdio>
+
+namespace tessera::cli {
+
+nlohmann::json rate_distortion_json(const std::string& model_id, double frame_rate, int codebook_size,
+                                    const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
+                                    const std::vector<quant::StageUsage>& stages) {
+  nlohmann::json j = {{"model_id", model_id}, {"frame_rate", frame_rate}, {"codebook_size", codebook_size}};
+  j["depths"] = nlohmann::json::array();
+  for (const auto& r : depths)
+    j["depths"].push_back({{"depth", r.depth}, {"kbps", r.kbps}, {"entropy_kbps", r.entropy_kbps},
+                           {"feature_mel_l1", r.feature_mel_l1}, {"feature_mcd_db", r.feature_mcd_db},
+                           {"mel_l1", r.mel_l1}, {"mcd_db", r.mcd_db}, {"spectral_convergence", r.spectral_convergence}});
+  j["oracle"] = {{"mel_l1", oracle.mel_l1}, {"mcd_db", oracle.mcd_db}, {"spectral_convergence", oracle.spectral_convergence}};
+  j["stages"] = nlohmann::json::array();
+  for (std::size_t s = 0; s < stages.size(); ++s)
+    j["stages"].push_back({{"stage", s + 1}, {"codes_used", stages[s].used}, {"perplexity", stages[s].perplexity},
+                           {"dead_share", double(stages[s].unused) / codebook_size},
+                           {"entropy_bits", stages[s].entropy_bits}});
+  return j;
+}
+
+std::string rate_distortion_table(const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
+                                  const std::vector<quant::StageUsage>& stages, int codebook_size) {
+  std::string out =
+      "| depth | kbps | entropy kbps | feature L1 | feature MCD dB | audio L1 | audio MCD dB | SC |\n"
+      "|---|---|---|---|---|---|---|---|\n";
+  char line[256];
+  for (const auto& r : depths) {
+    std::snprintf(line, sizeof line, "| %d | %.3f | %.3f | %.3f | %.2f | %.3f | %.2f | %.3f |\n", r.depth, r.kbps,
+                  r.entropy_kbps, r.feature_mel_l1, r.feature_mcd_db, r.mel_l1, r.mcd_db, r.spectral_convergence);
+    out += line;
+  }
+  std::snprintf(line, sizeof line, "| oracle | – | – | – | – | %.3f | %.2f | %.3f |\n", oracle.mel_l1, oracle.mcd_db,
+                oracle.spectral_convergence);
+  out += line;
+  out += "\n| stage | codes used | perplexity | dead share | entropy bits |\n|---|---|---|---|---|\n";
+  for (std::size_t s = 0; s < stages.size(); ++s) {
+    std::snprintf(line, sizeof line, "| %zu | %d / %d | %.1f | %.3f | %.2f |\n", s + 1, stages[s].used, codebook_size,
+                  stages[s].perplexity, double(stages[s].unused) / codebook_size, stages[s].entropy_bits);
+    out += line;
+  }
+  return out;
+}
+
+}  // namespace tessera::cli

@@ -1,0 +1,25 @@
+// rate_distortion.h — the one JSON schema and table of `ladder` and `evaluate`:
+// {"model_id", "frame_rate", "codebook_size",
+//  "depths": [{"depth", "kbps", "entropy_kbps", "feature_mel_l1", "feature_mcd_db",
+//              "mel_l1", "mcd_db", "spectral_convergence"}],
+//  "oracle": {"mel_l1", "mcd_db", "spectral_convergence"},
+//  "stages": [{"stage", "codes_used", "perplexity", "dead_share", "entropy_bits"}]}
+#pragma once
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "quant/depth_ladder.h"
+
+namespace tessera::cli {
+
+nlohmann::json rate_distortion_json(const std::string& model_id, double frame_rate, int codebook_size,
+                                    const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
+                                    const std::vector<quant::StageUsage>& stages);
+
+// Markdown tables for people: one row per depth and the oracle, then one per stage.
+std::string rate_distortion_table(const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
+                                  const std::vector<quant::StageUsage>& stages, int codebook_size);
+
+}  // namespace tessera::cli
