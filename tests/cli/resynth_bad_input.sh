@@ -32,7 +32,7 @@ expect() {
 printf 'words, not sound\n' >"$work/text.wav"
 : >"$work/empty.wav"
 # A valid 16-bit WAV header that promises 1 s of audio, cut after 100 samples.
-python3 - "$work" <<'PY'
+/usr/bin/python3 - "$work" <<'PY'
 import math, struct, sys
 d = sys.argv[1]
 def wav(path, fmt_tag, bits, samples, claimed=None, rate=16000):
@@ -72,6 +72,6 @@ else
   echo "skip unreadable config: running as root, who can read any file"
 fi
 # The input must be untouched by all of the above.
-python3 -c "import sys; d=open(sys.argv[1],'rb').read(); sys.exit(0 if len(d)==44+32000 else 1)" "$work/good.wav" \
+/usr/bin/python3 -c "import sys; d=open(sys.argv[1],'rb').read(); sys.exit(0 if len(d)==44+32000 else 1)" "$work/good.wav" \
   || { echo "FAIL good.wav was changed"; fails=$((fails + 1)); }
 [ $fails -eq 0 ] || { echo "$fails case(s) failed"; exit 1; }

@@ -1,0 +1,99 @@
+#!/usr/bin/env bash
+# tokens_end_to_end.sh — train a tiny model on the committed sample WAVs through the real
+# binary, then encode (resumable, sharded, flat), decode, ladder, evaluate and inspect, and
+# check that bad token files are refused. Usage: tokens_end_to_end.sh TESSERA_BINARY SOURCE_DIR
+set -euo pipefail
+bin=$1
+src=$2
+work=$(mktemp -d)
+trap 'rm -rf "$work"' EXIT
+fail() { echo "FAIL: $*"; exit 1; }
+
+mkdir -p "$work/corpus"
+cp "$src"/samples/*.wav "$work/corpus/"
+"$bin" train --out "$work/run" --corpus "$work/corpus" \
+  --set model.channels=16 --set model.latent_dim=8 --set codebooks.stages=3 --set codebooks.codes=16 \
+  --set codebooks.kmeans_init_batches=1 --set codebooks.kmeans_init_vectors=64 \
+  --set train.segment_frames=64 --set train.batch_size=4 --set train.steps=20 --set train.warmup_steps=2 \
+  --set train.validate_every=10 --set train.validation_segments=4 --set train.validation_share=0.3 >"$work/train.log"
+model=$work/run/model.safetensors
+[ -f "$model" ] || fail "no model written"
+"$bin" inspect "$model" | grep -q "3 stages x 16 codes" || fail "inspect does not show the codebooks"
+
+"$bin" encode --model "$model" "$work/corpus" --out "$work/tok" --flat "$work/flat.txt" >/dev/null
+n=$(find "$work/tok" -name '*.npy' | wc -l)
+[ "$n" -eq 4 ] || fail "expected 4 token files, got $n"
+[ "$(wc -l <"$work/tok/manifest.jsonl")" -eq 4 ] || fail "manifest should have 4 lines"
+[ "$(wc -l <"$work/flat.txt")" -eq 4 ] || fail "flat file should have 4 lines"
+/usr/bin/python3 - "$work" <<'PY' || fail "token files or manifest do not match (numpy check)"
+import json, sys, numpy as np
+w = sys.argv[1]
+for line in open(f"{w}/tok/manifest.jsonl"):
+    e = json.loads(line)
+    a = np.load(f"{w}/tok/{e['tokens']}")
+    assert a.dtype == np.int16 and a.ndim == 2 and a.flags.c_contiguous, a.dtype
+    assert a.shape == (e["frames"], e["depth"]) and e["depth"] == 3, (a.shape, e)
+    assert a.min() >= 0 and a.max() < e["codebook_size"] == 16
+    assert abs(e["frame_rate"] - 25.0) < 1e-9 and e["sample_rate"] == 16000
+first = [int(t) for t in open(f"{w}/flat.txt").readline().split()]
+assert all(first[i] // 16 == i % 3 for i in range(len(first))), "stage offsets in the flat form"
+PY
+# A rerun skips everything; shards partition the files and their manifests concatenate.
+"$bin" encode --model "$model" "$work/corpus" --out "$work/tok" | grep -q "4 already done" || fail "rerun did not skip"
+"$bin" encode --model "$model" "$work/corpus" --out "$work/shards" --shard 1/2 >/dev/null
+"$bin" encode --model "$model" "$work/corpus" --out "$work/shards" --shard 2/2 >/dev/null
+[ "$(cat "$work"/shards/manifest.shard-*.jsonl | wc -l)" -eq 4 ] || fail "shards do not cover the corpus"
+
+tokens=$(find "$work/tok" -name '*.npy' | sort | head -1)
+"$bin" decode --model "$model" "$tokens" -o "$work/d2.wav" --depth 2 --iters 8 >/dev/null
+[ -s "$work/d2.wav" ] || fail "decode wrote nothing"
+
+"$bin" ladder --model "$model" "$work/corpus/example-safety.wav" -o "$work/ladder" >/dev/null
+for f in original oracle depth-1 depth-2 depth-3; do [ -s "$work/ladder/$f.wav" ] || fail "ladder lacks $f.wav"; done
+"$bin" evaluate --model "$model" "$work/corpus" --json --csv "$work/eval.csv" >"$work/eval.json"
+/usr/bin/python3 - "$work" <<'PY' || fail "ladder.json / evaluate --json do not follow the schema"
+import json, sys
+w = sys.argv[1]
+for j in (json.load(open(f"{w}/ladder/ladder.json")), json.load(open(f"{w}/eval.json"))):
+    assert set(["model_id", "frame_rate", "codebook_size", "depths", "oracle", "stages"]) <= set(j)
+    assert [d["depth"] for d in j["depths"]] == [1, 2, 3]
+    for d in j["depths"]:
+        assert set(d) == {"depth", "kbps", "entropy_kbps", "feature_mel_l1", "feature_mcd_db", "mel_l1", "mcd_db",
+                          "spectral_convergence"}
+        assert d["entropy_kbps"] <= d["kbps"] + 1e-9   # entropy never exceeds log2(K) bits
+    assert abs(j["depths"][2]["kbps"] - 25 * 3 * 4 / 1000) < 1e-9
+    assert set(j["oracle"]) == {"mel_l1", "mcd_db", "spectral_convergence"}
+    assert [s["stage"] for s in j["stages"]] == [1, 2, 3]
+PY
+
+# Refusals: each exits 1 or 2 with a message, and writes nothing.
+/usr/bin/python3 - "$work" <<'PY'
+import numpy as np, sys
+w = sys.argv[1]
+np.save(f"{w}/big.npy", np.full((10, 3), 16, dtype=np.int16))
+np.save(f"{w}/neg.npy", np.full((10, 3), -1, dtype=np.int16))
+np.save(f"{w}/f32.npy", np.zeros((10, 3), dtype=np.float32))
+np.save(f"{w}/fortran.npy", np.asfortranarray(np.zeros((10, 3), dtype=np.int16)))
+np.save(f"{w}/deep.npy", np.zeros((10, 5), dtype=np.int16))
+PY
+refuse() {
+  local name=$1 pattern=$2; shift 2
+  set +e
+  "$bin" "$@" >/dev/null 2>"$work/err"
+  local rc=$?
+  set -e
+  { [ $rc -eq 1 ] || [ $rc -eq 2 ]; } || fail "$name: exit code $rc"
+  grep -q -E -e "$pattern" "$work/err" || fail "$name: message '$(cat "$work/err")' lacks /$pattern/"
+  [ ! -e "$work/out.wav" ] || fail "$name: wrote an output"
+  echo "ok   $name: $(cat "$work/err")"
+}
+refuse "code >= K" "outside 0..15" decode --model "$model" "$work/big.npy" -o "$work/out.wav"
+refuse "negative code" "outside 0..15" decode --model "$model" "$work/neg.npy" -o "$work/out.wav"
+refuse "float tokens" "f32.npy" decode --model "$model" "$work/f32.npy" -o "$work/out.wav"
+refuse "fortran order" "fortran.npy" decode --model "$model" "$work/fortran.npy" -o "$work/out.wav"
+refuse "depth beyond model" "5 but the model has 3" decode --model "$model" "$work/deep.npy" -o "$work/out.wav"
+refuse "depth beyond file" "holds 3 stages" decode --model "$model" "$tokens" -o "$work/out.wav" --depth 4
+sed -i 's/"model_id":"[0-9a-f]*"/"model_id":"0000000000000000"/' "$work/tok/manifest.jsonl"
+refuse "model id mismatch" "was made by model 0000000000000000" decode --model "$model" "$tokens" -o "$work/out.wav"
+refuse "bad shard" "--shard" encode --model "$model" "$work/corpus" --out "$work/x" --shard 3/2
+echo "all end-to-end checks passed"
