@@ -9,8 +9,7 @@
 //                                                    the same phase as Cₙ + α(Cₙ − Cₙ₋₁); α = 0 is
 //                                                    plain GL, Griffin & Lim 1984)
 //   Yₙ = Aₙ·Pₙ/|Pₙ|                                 keep the phase
-// The output is ISTFT(Y_iters). All buffers are kept in the object: after the first call of
-// a given shape, iterations allocate nothing.
+// The output is ISTFT(Y_iters). All buffers are kept in the object: iterations allocate nothing.
 #pragma once
 #include <Eigen/Core>
 #include <complex>
@@ -19,6 +18,7 @@
 #include <vector>
 
 #include "audio/audio_config.h"
+#include "audio/batch_fft.h"
 #include "audio/mel.h"
 #include "audio/stft.h"
 
@@ -70,14 +70,19 @@ class GriffinLim {
                              const MelFilterbank* fb, std::size_t length, double momentum,
                              const GriffinLimOptions& opt);
   std::size_t checked_length(Eigen::Index frames, std::size_t length) const;
+  void overlap_add(std::size_t frames);  // ISTFT numerator of y_ into ola_
 
+  // The iteration works on batches of W frames in the layout of batch_fft.h (lane j = frame
+  // b·W + j), so that the FFTs and every per-bin step run across frames in SIMD lanes.
   Stft stft_;
-  Eigen::MatrixXcf y_, c_prev_;            // F x T: current estimate Yₙ, previous Cₙ₋₁
-  std::vector<float> ola_, padded_;        // N + hop·(T−1), L + N
-  std::vector<std::complex<float>> c_;     // F
-  std::vector<float> mag_, target_, corr_; // F
-  std::vector<float> mel_res_, mel_tmp_;   // M
-  std::vector<float> phase_, scale_;       // 2F, F: momentum scratch
+  BatchRealFft fft_;
+  std::vector<float> synth_window_;     // N: window / N (the inverse FFT's 1/N)
+  LaneBuffer y_, c_prev_;               // 2F per batch: Yₙ, Cₙ₋₁
+  LaneBuffer start_, mel_;              // F, M per batch: A₀ (or the fixed target), target mel
+  LaneBuffer frames_, spec_;            // N, 2F: one batch of frames and of Cₙ
+  LaneBuffer mag_, target_, corr_;      // F: |Cₙ|, Aₙ, M⁺(mel − M·|Cₙ|)
+  LaneBuffer mel_res_, mel_g_;          // M: mel − M·|Cₙ|, (M·Mᵀ)⁺ times it
+  std::vector<float> ola_, padded_;     // N + hop·(T−1), L + N
 };
 
 // One-shot fixed-magnitude GL (plain or fast) with the config's momentum and zero phase.

@@ -1,9 +1,10 @@
-// stft.cpp — STFT/ISTFT with a periodic Hann window, centred reflect padding, KissFFT.
+// stft.cpp — STFT/ISTFT with a periodic Hann window, centred reflect padding, batched real FFTs.
 // F bins, T frames, N = n_fft, L signal length.
 #include "audio/stft.h"
 
 #include <kiss_fftr.h>
 
+#include <algorithm>
 #include <cassert>
 #include <cmath>
 #include <numbers>
@@ -51,6 +52,9 @@ Stft::Stft(int n_fft, int win_length, int hop_length)
       hop_(hop_length),
       win_offset_((n_fft - win_length) / 2),
       fft_(n_fft),
+      batch_(n_fft),
+      batch_frames_(std::size_t(n_fft)),
+      batch_bins_(2 * std::size_t(n_bins())),
       window_(std::size_t(n_fft), 0.0f),
       synth_window_(std::size_t(n_fft), 0.0f),
       frame_(std::size_t(n_fft), 0.0f),
@@ -105,17 +109,25 @@ void Stft::forward(const float* x, std::size_t length, Eigen::MatrixXcf& out) {
   const std::size_t T = n_frames(length);
   reflect_pad(x, length, padded_);
   out.resize(n_bins(), Eigen::Index(T));
-  for (std::size_t t = 0; t < T; ++t) analyze_frame(padded_.data() + t * std::size_t(hop_), out.col(Eigen::Index(t)).data());
+  for (std::size_t t0 = 0; t0 < T; t0 += kFftLanes) {
+    const int count = int(std::min<std::size_t>(kFftLanes, T - t0));
+    gather_frames(padded_.data() + t0 * std::size_t(hop_), std::size_t(hop_), count, window_.data(), win_offset_,
+                  win_offset_ + win_length_, n_fft_, batch_frames_.data());
+    batch_.forward(batch_frames_.data(), batch_bins_.data());
+    bins_to_columns(batch_bins_.data(), n_bins(), count, out.col(Eigen::Index(t0)).data(), std::size_t(n_bins()));
+  }
 }
 
 void Stft::overlap_add(const Eigen::MatrixXcf& spec, std::vector<float>& ola) {
   assert(spec.rows() == n_bins());
   const std::size_t T = std::size_t(spec.cols());
   ola.assign(std::size_t(n_fft_) + std::size_t(hop_) * (T - 1), 0.0f);
-  for (std::size_t t = 0; t < T; ++t) {
-    synthesize_frame(spec.col(Eigen::Index(t)).data(), synth_.data());
-    float* dst = ola.data() + t * std::size_t(hop_);
-    for (int n = win_offset_; n < win_offset_ + win_length_; ++n) dst[n] += synth_[std::size_t(n)];
+  for (std::size_t t0 = 0; t0 < T; t0 += kFftLanes) {
+    const int count = int(std::min<std::size_t>(kFftLanes, T - t0));
+    columns_to_bins(spec.col(Eigen::Index(t0)).data(), std::size_t(n_bins()), n_bins(), count, batch_bins_.data());
+    batch_.inverse(batch_bins_.data(), batch_frames_.data());
+    overlap_add_frames(batch_frames_.data(), synth_window_.data(), win_offset_, win_offset_ + win_length_,
+                       std::size_t(hop_), count, ola.data() + t0 * std::size_t(hop_));
   }
 }
 

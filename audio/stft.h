@@ -1,4 +1,4 @@
-// stft.h — short-time Fourier transform and its inverse (weighted overlap-add), KissFFT real FFT.
+// stft.h — short-time Fourier transform and its inverse (weighted overlap-add).
 // F bins (n_fft/2 + 1), T frames, N = n_fft, L signal length in samples.
 //
 // Contract (same conventions as torch.stft / librosa.stft with center=True, pad_mode='reflect'):
@@ -13,7 +13,10 @@
 //    multiplied by the window, overlap-added, and divided by the overlap-added squared window
 //    (least-squares ISTFT, Griffin & Lim 1984). Samples whose envelope is below 1e-10 are 0.
 //    Under COLA (Allen 1977; Hann with hop ≤ win/2 at an integer divisor) ISTFT(STFT(x)) = x.
-//  - objects keep an FFT plan and scratch; they are move-only and not thread-safe (one per thread).
+//  - forward and inverse transform several frames at once (BatchRealFft, batch_fft.h: vectorised
+//    for power-of-two n_fft, KissFFT per frame otherwise); analyze_frame / synthesize_frame use
+//    KissFFT (RealFft). Results agree to float rounding.
+//  - objects keep FFT plans and scratch; they are move-only and not thread-safe (one per thread).
 #pragma once
 #include <Eigen/Core>
 #include <complex>
@@ -22,6 +25,7 @@
 #include <vector>
 
 #include "audio/audio_config.h"
+#include "audio/batch_fft.h"
 
 struct kiss_fftr_state;  // KissFFT plan (kiss_fftr.h), kept out of this header
 
@@ -100,6 +104,9 @@ class Stft {
 
   int n_fft_, win_length_, hop_, win_offset_;
   RealFft fft_;
+  BatchRealFft batch_;
+  LaneBuffer batch_frames_;                     // N vectors: W frames in the batch layout
+  LaneBuffer batch_bins_;                       // 2F vectors
   std::vector<float> window_;                   // N
   std::vector<float> synth_window_;             // N, window / N (the inverse's 1/N)
   std::vector<float> frame_;                    // N analysis scratch (zeros outside window)
