@@ -7,6 +7,7 @@
 #include <algorithm>
 #include <cassert>
 #include <cmath>
+#include <cstring>
 #include <numbers>
 #include <string>
 
@@ -186,12 +187,18 @@ void Stft::inverse(const Eigen::MatrixXcf& spec, std::size_t length, std::vector
 }
 
 void magnitude(const std::complex<float>* bins, std::size_t n, float* out) {
-  // Squares in a plain loop, roots through Eigen: both vectorise (std::sqrt's errno path does not).
+  // Squares in a plain loop (vectorised), then IEEE roots W at a time. Every root is correctly
+  // rounded, so the result does not depend on how the buffers happen to be aligned.
   const float* __restrict p = reinterpret_cast<const float*>(bins);
   float* __restrict o = out;
   for (std::size_t k = 0; k < n; ++k) o[k] = p[2 * k] * p[2 * k] + p[2 * k + 1] * p[2 * k + 1];
-  Eigen::Map<Eigen::ArrayXf> m(out, Eigen::Index(n));
-  m = m.sqrt();
+  for (std::size_t k = 0; k < n; k += kFftLanes) {
+    const std::size_t len = std::min<std::size_t>(kFftLanes, n - k);
+    LaneVec v{};
+    std::memcpy(&v, out + k, len * sizeof(float));
+    v = lane_sqrt(v);
+    std::memcpy(out + k, &v, len * sizeof(float));
+  }
 }
 
 Eigen::MatrixXf magnitude(const Eigen::MatrixXcf& spec) {
