@@ -11,8 +11,9 @@
 // Power-of-two sizes N ≥ 16 use the planned transform here: the N/2-point complex FFT of
 // z[n] = x[2n] + i·x[2n+1] (radix-4 decimation in frequency forward, in time inverse, bit-reversed
 // order in between, so no permutation pass), then the split into the real spectrum
-// (Cooley & Tukey 1965; the real-from-half-size step as in Press et al., Numerical Recipes §12.3).
-// Other even sizes fall back to one KissFFT (RealFft) per lane. Plans are made once; calls
+// (Cooley & Tukey 1965; the real-from-half-size split as in Press et al., Numerical Recipes,
+// "FFT of real functions" — section from memory).
+// Other even sizes (and 2..8) fall back to one KissFFT (RealFft) per lane. Plans are made once; calls
 // allocate nothing. Objects keep scratch: not thread-safe (one per thread).
 #pragma once
 #include <cmath>
@@ -94,7 +95,7 @@ void columns_to_bins(const std::complex<float>* cols, std::size_t stride, int n_
 // IEEE square root of each lane.
 inline LaneVec lane_sqrt(LaneVec v) {
 #if defined(__AVX512F__)
-  return _mm512_sqrt_ps(v);
+  return _mm512_mask_sqrt_ps(v, __mmask16(0xffff), v);  // = _mm512_sqrt_ps without GCC 12's spurious warning
 #elif defined(__AVX__)
   return _mm256_sqrt_ps(v);
 #elif defined(__SSE2__)

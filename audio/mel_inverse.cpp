@@ -1,10 +1,11 @@
 // mel_inverse.cpp — clipped pseudo-inverse, projected-gradient NNLS, and the inversion dispatch.
-// M mels, F bins, T frames.
+// M mels, F bins, T frames, W frames per SIMD batch.
 #include "audio/mel_inverse.h"
 
 #include <algorithm>
 #include <string>
 
+#include "audio/batch_fft.h"
 #include "audio/error.h"
 
 namespace tessera::audio {
@@ -30,20 +31,43 @@ Eigen::MatrixXf nnls_magnitude(const MelFilterbank& fb, const Eigen::MatrixXf& m
     throw Error("nnls start must be " + std::to_string(fb.n_bins()) + " x " + std::to_string(mel.cols()) +
                 ", got " + std::to_string(start.rows()) + " x " + std::to_string(start.cols()));
   if (iters < 0) throw Error("nnls_iters must be >= 0, got " + std::to_string(iters));
-  const int F = fb.n_bins(), M = fb.n_mels();
+  const int F = fb.n_bins(), M = fb.n_mels(), W = kFftLanes;
   const float step = fb.lipschitz() > 0.0 ? float(1.0 / fb.lipschitz()) : 0.0f;
   Eigen::MatrixXf a = start;
-  std::vector<float> r(static_cast<std::size_t>(M)), grad(static_cast<std::size_t>(F));
-  // Frames are independent: all iterations of one frame run on data that stays in cache.
-  for (Eigen::Index t = 0; t < mel.cols(); ++t) {
-    float* at = a.col(t).data();
-    const float* mt = mel.col(t).data();
-    for (int it = 0; it < iters; ++it) {
-      fb.apply(at, r.data());
-      for (int m = 0; m < M; ++m) r[std::size_t(m)] -= mt[m];
-      fb.apply_transpose(r.data(), grad.data());
-      for (int k = 0; k < F; ++k) at[k] = std::max(at[k] - step * grad[std::size_t(k)], 0.0f);
+  LaneBuffer x(static_cast<std::size_t>(F)), grad(static_cast<std::size_t>(F)), target(static_cast<std::size_t>(M)),
+      r(static_cast<std::size_t>(M));
+  // Frames are independent: W frames at a time, one per SIMD lane (batch_fft.h), all iterations
+  // on data that stays in cache. Lanes past the last frame hold zeros and stay zero.
+  for (Eigen::Index t0 = 0; t0 < mel.cols(); t0 += W) {
+    const int count = int(std::min<Eigen::Index>(W, mel.cols() - t0));
+    std::fill(x.begin(), x.end(), LaneVec{});
+    std::fill(target.begin(), target.end(), LaneVec{});
+    for (int j = 0; j < count; ++j) {
+      for (int k = 0; k < F; ++k) x[std::size_t(k)][j] = a(k, t0 + j);
+      for (int m = 0; m < M; ++m) target[std::size_t(m)][j] = mel(m, t0 + j);
     }
+    for (int it = 0; it < iters; ++it) {
+      for (int m = 0; m < M; ++m) {  // r = M·a − mel (sparse bands)
+        const float* w = fb.weights(m);
+        const LaneVec* xm = x.data() + fb.first_bin(m);
+        LaneVec acc{};
+        for (int i = 0, n = fb.band_size(m); i < n; ++i) acc += w[i] * xm[i];
+        r[std::size_t(m)] = acc - target[std::size_t(m)];
+      }
+      std::fill(grad.begin(), grad.end(), LaneVec{});
+      for (int m = 0; m < M; ++m) {  // grad = Mᵀ·r
+        const float* w = fb.weights(m);
+        LaneVec* g = grad.data() + fb.first_bin(m);
+        const LaneVec rm = r[std::size_t(m)];
+        for (int i = 0, n = fb.band_size(m); i < n; ++i) g[i] += w[i] * rm;
+      }
+      for (int k = 0; k < F; ++k) {
+        const LaneVec v = x[std::size_t(k)] - step * grad[std::size_t(k)];
+        x[std::size_t(k)] = v > 0.0f ? v : LaneVec{};
+      }
+    }
+    for (int j = 0; j < count; ++j)
+      for (int k = 0; k < F; ++k) a(k, t0 + j) = x[std::size_t(k)][j];
   }
   return a;
 }

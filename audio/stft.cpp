@@ -58,9 +58,7 @@ Stft::Stft(int n_fft, int win_length, int hop_length)
       batch_bins_(2 * std::size_t(n_bins())),
       window_(std::size_t(n_fft), 0.0f),
       synth_window_(std::size_t(n_fft), 0.0f),
-      frame_(std::size_t(n_fft), 0.0f),
-      synth_(std::size_t(n_fft), 0.0f),
-      bins_(std::size_t(n_bins())) {
+      frame_(std::size_t(n_fft), 0.0f) {
   // Periodic Hann (scipy.signal.get_window('hann', n, fftbins=True)), computed in double.
   for (int n = 0; n < win_length; ++n) {
     const double w = 0.5 - 0.5 * std::cos(2.0 * std::numbers::pi * n / win_length);

@@ -110,8 +110,6 @@ class Stft {
   std::vector<float> window_;                   // N
   std::vector<float> synth_window_;             // N, window / N (the inverse's 1/N)
   std::vector<float> frame_;                    // N analysis scratch (zeros outside window)
-  std::vector<float> synth_;                    // N synthesis scratch
-  std::vector<std::complex<float>> bins_;       // F scratch
   std::vector<float> padded_;                   // L + N scratch for forward
   std::vector<float> ola_;                      // scratch for inverse
   std::vector<float> inv_env_;                  // length: 1 / envelope (0 where too small)
