@@ -110,6 +110,11 @@ int run_encode(const EncodeArgs& a) {
   Progress bar("encode", double(files.size()), "files/s");
   double audio_s = 0, busy_s = 0;
   std::size_t skipped = 0, n = 0;
+  auto status = [&] {
+    char extra[128];
+    std::snprintf(extra, sizeof extra, "  %.2f h audio  %.0fx real time", audio_s / 3600, busy_s > 0 ? audio_s / busy_s : 0);
+    return std::string(extra);
+  };
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
   for (const auto& f : files) {
     const std::string rel = tokens_path_for(f.relative);
@@ -147,13 +152,9 @@ int run_encode(const EncodeArgs& a) {
       *flat << line << "\n";
     }
     ++n;
-    char extra[128];
-    std::snprintf(extra, sizeof extra, "  %.2f h audio  %.0fx real time", audio_s / 3600, busy_s > 0 ? audio_s / busy_s : 0);
-    bar.update(double(n), extra);
+    bar.update(double(n), status());
   }
-  char extra[128];
-  std::snprintf(extra, sizeof extra, "  %.2f h audio  %.0fx real time", audio_s / 3600, busy_s > 0 ? audio_s / busy_s : 0);
-  bar.finish(extra);
+  bar.finish(status());
   if (flat) {
     flat->close();
     if (!*flat) throw Error("cannot write '" + a.flat + "'");
