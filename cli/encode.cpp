@@ -16,6 +16,7 @@
 #include "audio/file_list.h"
 #include "audio/log_mel.h"
 #include "cli/command.h"
+#include "cli/file_workers.h"
 #include "cli/progress.h"
 #include "quant/checkpoint.h"
 #include "quant/npy.h"
@@ -32,7 +33,7 @@ struct EncodeArgs {
 };
 
 void parse_shard(const std::string& s, int& index, int& count) {
-  index = 1, count = 1;
+  index = 0, count = 1;
   if (s.empty()) return;
   const auto slash = s.find('/');
   try {
@@ -42,10 +43,11 @@ void parse_shard(const std::string& s, int& index, int& count) {
     count = std::stoi(s.substr(slash + 1), &b);
     if (a != slash || b != s.size() - slash - 1) throw std::invalid_argument("");
   } catch (const std::exception&) {
-    throw Error("--shard '" + s + "': expected i/n, e.g. 3/8");
+    throw Error("--shard '" + s + "': expected i/n, e.g. 0/8");
   }
-  if (count < 1 || index < 1 || index > count)
-    throw Error("--shard '" + s + "': expected 1 <= i <= n");
+  // 0-based like most batch schedulers' array indices: the shards of n are 0/n ... (n-1)/n.
+  if (count < 1 || index < 0 || index >= count)
+    throw Error("--shard '" + s + "': expected 0 <= i < n (shards 0/n ... " + std::to_string(count - 1) + "/n)");
 }
 
 std::string tokens_path_for(const std::string& relative) {
@@ -55,10 +57,10 @@ std::string tokens_path_for(const std::string& relative) {
 }
 
 int run_encode(const EncodeArgs& a) {
-  int shard = 1, shards = 1;
+  int shard = 0, shards = 1;
   parse_shard(a.shard, shard, shards);
   quant::ModelInfo info;
-  auto tok = quant::load_model(a.model, a.jobs, &info);
+  auto tok = quant::load_model(a.model, 1, &info);
   const quant::ExperimentConfig& cfg = tok->config();
   const int depth = a.depth == 0 ? cfg.codebooks.stages : a.depth;
   if (depth < 1 || depth > cfg.codebooks.stages)
@@ -68,7 +70,7 @@ int run_encode(const EncodeArgs& a) {
   std::vector<audio::InputFile> all = audio::expand_inputs(a.inputs);
   std::vector<audio::InputFile> files;
   for (std::size_t i = 0; i < all.size(); ++i)
-    if (int(i % std::size_t(shards)) == shard - 1) files.push_back(all[i]);
+    if (int(i % std::size_t(shards)) == shard) files.push_back(all[i]);
   // Two inputs must not land on one token file (a.wav and a.flac side by side).
   std::map<std::string, std::string> owner;
   for (const auto& f : files) {
@@ -106,62 +108,103 @@ int run_encode(const EncodeArgs& a) {
 
   const double code_rate = cfg.code_rate();
   const int K = cfg.codebooks.codes;
-  audio::LogMel lm(cfg.audio);
+  // Many files: one model per core; few long files: one model using every core.
+  const WorkerPlan plan = plan_workers(a.jobs, files.size() - std::min(files.size(), done.size()));
+  std::vector<std::unique_ptr<quant::Tokenizer>> models;
+  if (plan.threads_per_worker == 1) models.push_back(std::move(tok));
+  while (int(models.size()) < plan.workers) models.push_back(quant::load_model(a.model, plan.threads_per_worker));
   Progress bar("encode", double(files.size()), "files/s");
-  double audio_s = 0, busy_s = 0;
+  double audio_s = 0;
   std::size_t skipped = 0, n = 0;
   auto status = [&] {
     char extra[128];
-    std::snprintf(extra, sizeof extra, "  %.2f h audio  %.0fx real time", audio_s / 3600, busy_s > 0 ? audio_s / busy_s : 0);
+    const double wall = bar.elapsed();
+    std::snprintf(extra, sizeof extra, "  %.2f h audio  %.0fx real time", audio_s / 3600, wall > 0 ? audio_s / wall : 0);
     return std::string(extra);
   };
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
-  for (const auto& f : files) {
-    const std::string rel = tokens_path_for(f.relative);
-    const fs::path out = fs::path(a.out) / rel;
+  struct Result {
     Eigen::MatrixXi codes;
-    if (auto it = done.find(rel); it != done.end()) {
-      ++skipped;
-      if (flat) {
-        const quant::Int16Matrix m = quant::read_npy_i16(out.string());
-        codes.resize(m.rows, m.cols);
-        for (std::int64_t r = 0; r < m.rows; ++r)
-          for (std::int64_t c = 0; c < m.cols; ++c) codes(r, c) = m.data[std::size_t(r * m.cols + c)];
-      }
-    } else {
-      const auto t0 = std::chrono::steady_clock::now();
-      const audio::Audio au = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm);
-      codes = tok->encode(lm.compute(au.samples), depth);
-      std::vector<std::int16_t> rows(std::size_t(codes.size()));
-      for (Eigen::Index r = 0; r < codes.rows(); ++r)
-        for (int c = 0; c < depth; ++c) rows[std::size_t(r) * depth + c] = std::int16_t(codes(r, c));
-      fs::create_directories(out.parent_path());
-      quant::write_npy_i16(out.string(), rows.data(), codes.rows(), depth);
-      quant::ManifestEntry e{f.path, rel, au.duration(), codes.rows(), depth, cfg.audio.sample_rate,
-                             code_rate, info.model_id, K};
-      log << quant::to_json_line(e) << "\n" << std::flush;
-      audio_s += au.duration();
-      busy_s += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-    }
-    if (flat) {
-      // Stages interleaved frame by frame; stage s offset by s·K, one line per file.
-      std::string line;
-      for (Eigen::Index r = 0; r < codes.rows(); ++r)
-        for (Eigen::Index c = 0; c < codes.cols(); ++c)
-          line += (line.empty() ? "" : " ") + std::to_string(codes(r, c) + int(c) * K);
-      *flat << line << "\n";
-    }
-    ++n;
-    bar.update(double(n), status());
-  }
+    double duration = 0;
+    bool skipped = false;
+    std::string error;  // a bad or too-short file is reported and skipped, not fatal
+  };
+  std::vector<std::string> failed;
+  std::vector<Result> results(files.size());
+  run_file_workers(
+      files.size(), plan.workers,
+      [&](std::size_t i, int w) {
+        const auto& f = files[i];
+        const std::string rel = tokens_path_for(f.relative);
+        const fs::path out = fs::path(a.out) / rel;
+        Result& r = results[i];
+        if (done.count(rel)) {
+          r.skipped = true;
+          if (flat) {
+            const quant::Int16Matrix m = quant::read_npy_i16(out.string());
+            r.codes.resize(m.rows, m.cols);
+            for (std::int64_t y = 0; y < m.rows; ++y)
+              for (std::int64_t c = 0; c < m.cols; ++c) r.codes(y, c) = m.data[std::size_t(y * m.cols + c)];
+          }
+          return;
+        }
+        try {
+          const audio::Audio au = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm);
+          r.duration = au.duration();
+          r.codes = models[std::size_t(w)]->encode(au.samples, depth);
+        } catch (const Error& e) {
+          const std::string m = e.what();
+          r.error = m.find(f.path) == std::string::npos ? f.path + ": " + m : m;
+          return;
+        }
+        std::vector<std::int16_t> rows(std::size_t(r.codes.size()));
+        for (Eigen::Index y = 0; y < r.codes.rows(); ++y)
+          for (int c = 0; c < depth; ++c) rows[std::size_t(y) * depth + c] = std::int16_t(r.codes(y, c));
+        fs::create_directories(out.parent_path());
+        quant::write_npy_i16(out.string(), rows.data(), r.codes.rows(), depth);
+      },
+      [&](std::size_t i) {
+        Result& r = results[i];
+        if (!r.error.empty()) {
+          std::fprintf(stderr, "\rskipped   %s\n", r.error.c_str());
+          failed.push_back(r.error);
+          bar.update(double(++n), status());
+          return;
+        }
+        if (r.skipped) {
+          ++skipped;
+        } else {
+          quant::ManifestEntry e{files[i].path, tokens_path_for(files[i].relative), r.duration, r.codes.rows(), depth,
+                                 cfg.audio.sample_rate, code_rate, info.model_id, K};
+          log << quant::to_json_line(e) << "\n" << std::flush;
+          audio_s += r.duration;
+        }
+        if (flat) {
+          // Stages interleaved frame by frame; stage s offset by s·K, one line per file.
+          std::string line;
+          for (Eigen::Index y = 0; y < r.codes.rows(); ++y)
+            for (Eigen::Index c = 0; c < r.codes.cols(); ++c)
+              line += (line.empty() ? "" : " ") + std::to_string(r.codes(y, c) + int(c) * K);
+          *flat << line << "\n";
+        }
+        r.codes.resize(0, 0);  // committed: free it
+        bar.update(double(++n), status());
+      });
   bar.finish(status());
   if (flat) {
+    // The flat file holds one line per input in input order, so it is only complete when
+    // every file was encoded; otherwise it is not written at all.
     flat->close();
-    if (!*flat) throw Error("cannot write '" + a.flat + "'");
-    fs::rename(a.flat + ".tmp", a.flat);
+    std::error_code ec;
+    if (!failed.empty()) fs::remove(a.flat + ".tmp", ec);
+    else if (!*flat) throw Error("cannot write '" + a.flat + "'");
+    else fs::rename(a.flat + ".tmp", a.flat);
   }
-  std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\nmanifest  %s\n", files.size() - skipped,
-              skipped, depth, a.out.c_str(), manifest.c_str());
+  std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\nmanifest  %s\n",
+              files.size() - skipped - failed.size(), skipped, depth, a.out.c_str(), manifest.c_str());
+  if (!failed.empty())
+    throw Error(std::to_string(failed.size()) + " of " + std::to_string(files.size()) +
+                " files could not be encoded (each named above); the rest are done, and a rerun retries only these");
   return 0;
 }
 
@@ -174,7 +217,7 @@ Run register_encode(CLI::App& app) {
   cmd->add_option("inputs", a->inputs, "audio files, folders (recursive) or list files")->required();
   cmd->add_option("-o,--out", a->out, "output folder (mirrors the input tree, plus manifest.jsonl)")->required();
   cmd->add_option("--depth", a->depth, "stages to keep (default: all)");
-  cmd->add_option("--shard", a->shard, "take every n-th file starting at the i-th: i/n");
+  cmd->add_option("--shard", a->shard, "take every n-th file starting at the i-th (0-based): i/n");
   cmd->add_option("--jobs", a->jobs, "threads (default: all cores)");
   cmd->add_option("--flat", a->flat, "also write one line of integer tokens per file (stage s offset by s*K)");
   return [a] { return run_encode(*a); };

@@ -10,6 +10,7 @@
 #include "audio/error.h"
 #include "audio/file_list.h"
 #include "cli/command.h"
+#include "cli/file_workers.h"
 #include "cli/progress.h"
 #include "cli/rate_distortion.h"
 #include "quant/checkpoint.h"
@@ -66,26 +67,47 @@ double mean_of(std::vector<double> v) { return mean(v); }
 
 int run_evaluate(const EvaluateArgs& a) {
   quant::ModelInfo info;
-  auto tok = quant::load_model(a.model, a.jobs, &info);
-  const quant::ExperimentConfig& cfg = tok->config();
   const std::vector<audio::InputFile> files = audio::expand_inputs(a.inputs);
+  const WorkerPlan plan = plan_workers(a.jobs, files.size());
+  std::vector<std::unique_ptr<quant::Tokenizer>> models;
+  models.push_back(quant::load_model(a.model, plan.threads_per_worker, &info));
+  for (int w = 1; w < plan.workers; ++w) models.push_back(quant::load_model(a.model, plan.threads_per_worker));
+  const quant::ExperimentConfig& cfg = models[0]->config();
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
   quant::UsageStats usage(cfg.codebooks.stages, cfg.codebooks.codes);
-  std::vector<quant::Ladder> all;
+  std::vector<quant::Ladder> all(files.size());
   Progress bar("evaluate", double(files.size()), "files/s");
   double audio_s = 0;
-  for (const auto& f : files) {
-    const audio::Audio in = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm);
-    all.push_back(quant::depth_ladder(*tok, in.samples, {}, /*keep_audio=*/false));
-    usage.add_codes(all.back().codes);
-    audio_s += in.duration();
-    char extra[64];
-    std::snprintf(extra, sizeof extra, "  %.1f min audio", audio_s / 60);
-    bar.update(double(all.size()), extra);
-  }
+  std::size_t n = 0;
+  run_file_workers(
+      files.size(), plan.workers,
+      [&](std::size_t i, int w) {
+        try {
+          const audio::Audio in = audio::load_audio_as(files[i].path, cfg.audio.sample_rate, norm);
+          all[i] = quant::depth_ladder(*models[std::size_t(w)], in.samples, {}, /*keep_audio=*/false);
+        } catch (const Error& e) {
+          const std::string m = e.what();
+          throw Error(m.find(files[i].path) == std::string::npos ? files[i].path + ": " + m : m);
+        }
+      },
+      [&](std::size_t i) {
+        usage.add_codes(all[i].codes);
+        audio_s += all[i].seconds;
+        char extra[64];
+        std::snprintf(extra, sizeof extra, "  %.1f min audio", audio_s / 60);
+        bar.update(double(++n), extra);
+      });
   bar.finish();
   std::vector<quant::StageUsage> stages;
   for (int s = 0; s < cfg.codebooks.stages; ++s) stages.push_back(usage.stage(s));
+  // Re-encode agreement weighted by frames: the share over the whole corpus.
+  std::vector<double> reencode(std::size_t(cfg.codebooks.stages), 0.0);
+  double frames = 0;
+  for (const auto& l : all) {
+    frames += double(l.codes.rows());
+    for (std::size_t s = 0; s < reencode.size(); ++s) reencode[s] += l.reencode_agreement[s] * double(l.codes.rows());
+  }
+  for (double& r : reencode) r = frames > 0 ? r / frames : 0;
   // Entropy of the whole corpus's codes, not the mean of per-file entropies.
   const auto means = reduce_rows(all, mean_of), medians = reduce_rows(all, median);
   std::vector<quant::DepthRow> corpus_means = means;
@@ -108,7 +130,7 @@ int run_evaluate(const EvaluateArgs& a) {
     write_file_atomic(a.csv, csv);
   }
   if (a.json) {
-    nlohmann::json j = rate_distortion_json(info.model_id, cfg.code_rate(), cfg.codebooks.codes, corpus_means, om, stages);
+    nlohmann::json j = rate_distortion_json(info.model_id, cfg.code_rate(), cfg.codebooks.codes, corpus_means, om, stages, reencode);
     j["files"] = files.size();
     j["audio_s"] = audio_s;
     j["median"] = rate_distortion_json(info.model_id, cfg.code_rate(), cfg.codebooks.codes, medians, omed, stages)["depths"];
@@ -119,7 +141,7 @@ int run_evaluate(const EvaluateArgs& a) {
   std::printf("model %s on %zu files (%.1f min)\n\nmean over files (entropy over the whole corpus):\n\n%s\n"
               "median over files:\n\n%s",
               info.model_id.c_str(), files.size(), audio_s / 60,
-              rate_distortion_table(corpus_means, om, stages, cfg.codebooks.codes).c_str(),
+              rate_distortion_table(corpus_means, om, stages, cfg.codebooks.codes, reencode).c_str(),
               rate_distortion_table(medians, omed, {}, cfg.codebooks.codes).c_str());
   if (!a.csv.empty()) std::printf("\nper file: %s\n", a.csv.c_str());
   return 0;

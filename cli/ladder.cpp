@@ -47,13 +47,13 @@ int run_ladder(const LadderArgs& a) {
   save("oracle.wav", lad.oracle_audio);
   for (std::size_t i = 0; i < lad.depths.size(); ++i) save("depth-" + std::to_string(lad.depths[i].depth) + ".wav", lad.audio[i]);
   nlohmann::json j = rate_distortion_json(info.model_id, cfg.code_rate(), cfg.codebooks.codes, lad.depths, lad.oracle,
-                                          lad.stages);
+                                          lad.stages, lad.reencode_agreement);
   j["source"] = a.input;
   j["duration_s"] = lad.seconds;
   write_file_atomic((fs::path(a.out) / "ladder.json").string(), j.dump(2) + "\n");
   std::printf("%s: %.2f s, model %s\n\n%s\nwrote     %s/{original,oracle,depth-1..%d}.wav and ladder.json\n",
               a.input.c_str(), lad.seconds, info.model_id.c_str(),
-              rate_distortion_table(lad.depths, lad.oracle, lad.stages, cfg.codebooks.codes).c_str(), a.out.c_str(),
+              rate_distortion_table(lad.depths, lad.oracle, lad.stages, cfg.codebooks.codes, lad.reencode_agreement).c_str(), a.out.c_str(),
               cfg.codebooks.stages);
   return 0;
 }

@@ -7,7 +7,8 @@ namespace tessera::cli {
 
 nlohmann::json rate_distortion_json(const std::string& model_id, double frame_rate, int codebook_size,
                                     const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
-                                    const std::vector<quant::StageUsage>& stages) {
+                                    const std::vector<quant::StageUsage>& stages,
+                                    const std::vector<double>& reencode_agreement) {
   nlohmann::json j = {{"model_id", model_id}, {"frame_rate", frame_rate}, {"codebook_size", codebook_size}};
   j["depths"] = nlohmann::json::array();
   for (const auto& r : depths)
@@ -20,11 +21,14 @@ nlohmann::json rate_distortion_json(const std::string& model_id, double frame_ra
     j["stages"].push_back({{"stage", s + 1}, {"codes_used", stages[s].used}, {"perplexity", stages[s].perplexity},
                            {"dead_share", double(stages[s].unused) / codebook_size},
                            {"entropy_bits", stages[s].entropy_bits}});
+  for (std::size_t s = 0; s < stages.size() && s < reencode_agreement.size(); ++s)
+    j["stages"][s]["reencode_agreement"] = reencode_agreement[s];
   return j;
 }
 
 std::string rate_distortion_table(const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
-                                  const std::vector<quant::StageUsage>& stages, int codebook_size) {
+                                  const std::vector<quant::StageUsage>& stages, int codebook_size,
+                                  const std::vector<double>& reencode_agreement) {
   std::string out =
       "| depth | kbps | entropy kbps | feature L1 | feature MCD dB | audio L1 | audio MCD dB | SC |\n"
       "|---|---|---|---|---|---|---|---|\n";
@@ -37,11 +41,19 @@ std::string rate_distortion_table(const std::vector<quant::DepthRow>& depths, co
   std::snprintf(line, sizeof line, "| oracle | – | – | – | – | %.3f | %.2f | %.3f |\n", oracle.mel_l1, oracle.mcd_db,
                 oracle.spectral_convergence);
   out += line;
-  out += "\n| stage | codes used | perplexity | dead share | entropy bits |\n|---|---|---|---|---|\n";
+  if (stages.empty()) return out;
+  const bool re = reencode_agreement.size() >= stages.size();
+  out += re ? "\n| stage | codes used | perplexity | dead share | entropy bits | kept on re-encode |\n|---|---|---|---|---|---|\n"
+            : "\n| stage | codes used | perplexity | dead share | entropy bits |\n|---|---|---|---|---|\n";
   for (std::size_t s = 0; s < stages.size(); ++s) {
-    std::snprintf(line, sizeof line, "| %zu | %d / %d | %.1f | %.3f | %.2f |\n", s + 1, stages[s].used, codebook_size,
+    std::snprintf(line, sizeof line, "| %zu | %d / %d | %.1f | %.3f | %.2f |", s + 1, stages[s].used, codebook_size,
                   stages[s].perplexity, double(stages[s].unused) / codebook_size, stages[s].entropy_bits);
     out += line;
+    if (re) {
+      std::snprintf(line, sizeof line, " %.1f%% |", 100 * reencode_agreement[s]);
+      out += line;
+    }
+    out += "\n";
   }
   return out;
 }

@@ -3,7 +3,10 @@
 //  "depths": [{"depth", "kbps", "entropy_kbps", "feature_mel_l1", "feature_mcd_db",
 //              "mel_l1", "mcd_db", "spectral_convergence"}],
 //  "oracle": {"mel_l1", "mcd_db", "spectral_convergence"},
-//  "stages": [{"stage", "codes_used", "perplexity", "dead_share", "entropy_bits"}]}
+//  "stages": [{"stage", "codes_used", "perplexity", "dead_share", "entropy_bits",
+//              "reencode_agreement"}]}
+// reencode_agreement: share of a stage's codes kept when the full-depth decoded log-mel is
+// encoded again (left out when not measured).
 #pragma once
 #include <string>
 #include <vector>
@@ -16,10 +19,12 @@ namespace tessera::cli {
 
 nlohmann::json rate_distortion_json(const std::string& model_id, double frame_rate, int codebook_size,
                                     const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
-                                    const std::vector<quant::StageUsage>& stages);
+                                    const std::vector<quant::StageUsage>& stages,
+                                    const std::vector<double>& reencode_agreement = {});
 
 // Markdown tables for people: one row per depth and the oracle, then one per stage.
 std::string rate_distortion_table(const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
-                                  const std::vector<quant::StageUsage>& stages, int codebook_size);
+                                  const std::vector<quant::StageUsage>& stages, int codebook_size,
+                                  const std::vector<double>& reencode_agreement = {});
 
 }  // namespace tessera::cli

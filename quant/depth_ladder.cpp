@@ -11,6 +11,10 @@
 
 namespace tessera::quant {
 
+double nominal_kbps(double code_rate, int depth, int codebook_size) {
+  return code_rate * depth * std::log2(double(codebook_size)) / 1000;
+}
+
 double entropy_kbps(const std::vector<StageUsage>& stages, int depth, double code_rate) {
   double bits = 0;
   for (int s = 0; s < depth && s < int(stages.size()); ++s) bits += stages[std::size_t(s)].entropy_bits;
@@ -30,6 +34,13 @@ Ladder depth_ladder(Tokenizer& model, const std::vector<float>& samples, std::ve
   const Eigen::MatrixXf mel = audio::log_mel(cfg.audio, samples);
   lad.codes = model.encode(mel, S);
   lad.stages = usage_of_codes(lad.codes, cfg.codebooks.codes);
+  {
+    const Eigen::MatrixXi again = model.encode(model.decode(lad.codes, S), S);
+    const Eigen::Index L = std::min(again.rows(), lad.codes.rows());
+    for (int s = 0; s < S; ++s)
+      lad.reencode_agreement.push_back(
+          L ? double((again.col(s).head(L).array() == lad.codes.col(s).head(L).array()).count()) / double(L) : 0.0);
+  }
   const int total = int(depths.size()) + 1;
   int done = 0;
   audio::MelInverter inverter(cfg.audio);
@@ -41,13 +52,12 @@ Ladder depth_ladder(Tokenizer& model, const std::vector<float>& samples, std::ve
   if (keep_audio) lad.oracle_audio = oracle;
   if (progress) progress(++done, total);
 
-  const double bits = std::log2(double(cfg.codebooks.codes));
   for (int d : depths) {
     const Eigen::MatrixXf dec = model.decode(lad.codes, d);
     const Eigen::Index T = std::min(dec.cols(), mel.cols());
     DepthRow r;
     r.depth = d;
-    r.kbps = cfg.code_rate() * d * bits / 1000;
+    r.kbps = nominal_kbps(cfg.code_rate(), d, cfg.codebooks.codes);
     r.entropy_kbps = entropy_kbps(lad.stages, d, cfg.code_rate());
     r.feature_mel_l1 = audio::mel_l1(mel.leftCols(T), dec.leftCols(T));
     r.feature_mcd_db = audio::mcd_db(mel.leftCols(T), dec.leftCols(T));

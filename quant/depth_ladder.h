@@ -34,6 +34,9 @@ struct Ladder {
   OracleRow oracle;
   Eigen::MatrixXi codes;                 // L x stages, all stages
   std::vector<StageUsage> stages;        // of this utterance's codes
+  // Per stage, the share of code frames that come back unchanged when the full-depth
+  // decoded log-mel is encoded again (token stability; chance is 1/K).
+  std::vector<double> reencode_agreement;
   std::vector<std::vector<float>> audio; // per row of `depths`, when kept
   std::vector<float> oracle_audio;       // when kept
   double seconds = 0;                    // duration of the input
@@ -43,6 +46,9 @@ struct Ladder {
 // the model's audio settings. `progress(done, total)` counts syntheses.
 Ladder depth_ladder(Tokenizer& model, const std::vector<float>& samples, std::vector<int> depths, bool keep_audio,
                     const std::function<void(int, int)>& progress = {});
+
+// Nominal rate: code_rate · depth · log2(K) bit/s, in kbps.
+double nominal_kbps(double code_rate, int depth, int codebook_size);
 
 // Entropy-bound rate for a depth from per-stage entropies (bits per code).
 double entropy_kbps(const std::vector<StageUsage>& stages, int depth, double code_rate);

@@ -1,9 +1,13 @@
 // tokenizer.cpp — model assembly and the inference paths.
 #include "quant/tokenizer.h"
 
+#include <algorithm>
 #include <thread>
 
 #include "audio/error.h"
+#include "audio/log_mel.h"
+#include "audio/mel_inverse.h"
+#include "quant/checkpoint.h"
 
 namespace tessera::quant {
 
@@ -29,7 +33,27 @@ void Tokenizer::init(std::uint64_t seed) {
   dec_.init(slab_, rng);
 }
 
+std::unique_ptr<Tokenizer> Tokenizer::load(const std::string& path, int threads) { return load_model(path, threads); }
+
+Eigen::MatrixXf Tokenizer::log_mel(const std::vector<float>& samples) const {
+  return audio::log_mel(cfg_.audio, samples);
+}
+
+Eigen::MatrixXi Tokenizer::encode(const std::vector<float>& samples, int depth) {
+  if (depth == 0) depth = stages();
+  return encode(log_mel(samples), depth);
+}
+
+std::vector<float> Tokenizer::synthesize(const Eigen::MatrixXf& log_mel, int iters) const {
+  audio::AudioConfig acfg = cfg_.audio;
+  if (iters >= 0) acfg.griffin_lim_iters = iters;
+  return audio::invert_log_mel(acfg, log_mel, 0);
+}
+
 Eigen::MatrixXi Tokenizer::encode(const Eigen::MatrixXf& log_mel, int depth) {
+  if (depth < 1 || depth > stages())
+    throw Error("depth " + std::to_string(depth) + " is outside 1.." + std::to_string(stages()) +
+                " (the model's stages)");
   const int M = cfg_.model.n_mels;
   if (log_mel.rows() != M)
     throw Error("features have " + std::to_string(log_mel.rows()) + " mel bands; the model expects " +
@@ -45,7 +69,15 @@ Eigen::MatrixXi Tokenizer::encode(const Eigen::MatrixXf& log_mel, int depth) {
 }
 
 Eigen::MatrixXf Tokenizer::decode(const Eigen::MatrixXi& codes, int depth) {
+  if (depth < 1 || depth > stages() || depth > codes.cols())
+    throw Error("depth " + std::to_string(depth) + " is outside 1.." +
+                std::to_string(std::min<Eigen::Index>(stages(), codes.cols())) + " (stages of the model and the codes)");
   const int L = int(codes.rows());
+  if (L < 1) throw Error("no code frames to decode");
+  const int K = cfg_.codebooks.codes;
+  const auto used = codes.leftCols(depth);
+  if (used.minCoeff() < 0 || used.maxCoeff() >= K)
+    throw Error("codes outside 0.." + std::to_string(K - 1) + " (the model's codebook size is " + std::to_string(K) + ")");
   zq_.resize(1, cfg_.codebooks.dim, L);
   rvq_.decode(codes, depth, zq_.all());
   dec_.forward(zq_, y_, slab_, /*train=*/false);

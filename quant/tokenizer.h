@@ -1,6 +1,18 @@
 // tokenizer.h — the whole model: normalisation, encoder, residual codebooks, decoder,
-// with the inference paths audio features → codes → features.
+// with the inference paths audio → features → codes → features → audio.
 // M mels, T frames, L code frames (T / hop), D latent dims, S stages, K codes, d depth.
+//
+// The library API for other C++ programs (link tessera_quant; no CLI needed):
+//
+//   auto tok = tessera::quant::Tokenizer::load("model.safetensors");     // throws tessera::Error
+//   Eigen::MatrixXi codes = tok->encode(samples);          // mono float samples at
+//                                                           // tok->sample_rate(); L x S codes
+//   Eigen::MatrixXf mel = tok->decode(codes, /*depth=*/2);  // log-mel from the first 2 stages
+//   std::vector<float> audio = tok->synthesize(mel);         // Griffin-Lim, model's settings
+//
+// tessera::audio::load_audio_as(path, tok->sample_rate(), nullptr) reads and resamples a
+// file. A Tokenizer is not thread-safe (it keeps scratch buffers); use one per thread, or
+// give one several threads with `threads`.
 #pragma once
 #include <memory>
 #include <string>
@@ -24,6 +36,10 @@ class Tokenizer {
   // until init() or a checkpoint fills them. Throws tessera::Error on a bad config.
   Tokenizer(const ExperimentConfig& cfg, int threads, int max_batch_vectors = 4096);
 
+  // Reads a model written by `tessera train` (checkpoint.h: load_model, which also returns
+  // the model id). `threads` 0 = all cores.
+  static std::unique_ptr<Tokenizer> load(const std::string& path, int threads = 0);
+
   // PyTorch-default initialisation of every layer from `seed`.
   void init(std::uint64_t seed);
 
@@ -38,6 +54,17 @@ class Tokenizer {
   const BandStats& stats() const { return stats_; }
   ThreadPool& pool() { return pool_; }
   int hop() const { return cfg_.model.hop(); }
+  int sample_rate() const { return cfg_.audio.sample_rate; }
+  int stages() const { return cfg_.codebooks.stages; }
+
+  // Mono samples at sample_rate() → codes L x depth (depth 0 = all stages). Throws
+  // tessera::Error when the audio is shorter than one code frame or depth is out of range.
+  Eigen::MatrixXi encode(const std::vector<float>& samples, int depth = 0);
+  // Mono samples → the model's natural-log log-mel M x T (the features it encodes).
+  Eigen::MatrixXf log_mel(const std::vector<float>& samples) const;
+  // Log-mel M x T → samples at sample_rate() by the model's mel inversion and Griffin-Lim
+  // (`iters` < 0: the model's audio.griffin_lim_iters). Not peak-limited: audio::save_wav is.
+  std::vector<float> synthesize(const Eigen::MatrixXf& log_mel, int iters = -1) const;
 
   // Natural-log log-mel M x T (unnormalised) → codes L x depth, L = T / hop (frames past
   // the last whole code frame are dropped).

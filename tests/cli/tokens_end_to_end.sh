@@ -40,9 +40,25 @@ assert all(first[i] // 16 == i % 3 for i in range(len(first))), "stage offsets i
 PY
 # A rerun skips everything; shards partition the files and their manifests concatenate.
 "$bin" encode --model "$model" "$work/corpus" --out "$work/tok" | grep -q "4 already done" || fail "rerun did not skip"
-"$bin" encode --model "$model" "$work/corpus" --out "$work/shards" --shard 1/2 >/dev/null
-"$bin" encode --model "$model" "$work/corpus" --out "$work/shards" --shard 2/2 >/dev/null
-[ "$(cat "$work"/shards/manifest.shard-*.jsonl | wc -l)" -eq 4 ] || fail "shards do not cover the corpus"
+# Sharding (0-based, as batch schedulers number array tasks): the union of 0/3, 1/3 and 2/3
+# equals the unsharded output file by file, byte for byte, and the shards never overlap.
+for i in 0 1 2; do "$bin" encode --model "$model" "$work/corpus" --out "$work/shards" --shard $i/3 >/dev/null; done
+[ "$(cat "$work"/shards/manifest.shard-*-of-3.jsonl | wc -l)" -eq 4 ] || fail "shard manifests do not hold 4 lines"
+(cd "$work/tok" && find . -name '*.npy' | sort) >"$work/whole.list"
+(cd "$work/shards" && find . -name '*.npy' | sort) >"$work/sharded.list"
+cmp -s "$work/whole.list" "$work/sharded.list" || fail "sharded files differ from unsharded: $(diff "$work/whole.list" "$work/sharded.list")"
+while read -r f; do cmp -s "$work/tok/$f" "$work/shards/$f" || fail "shard output $f differs from the unsharded one"; done <"$work/whole.list"
+/usr/bin/python3 - "$work" <<'PY' || fail "shard manifests overlap or differ from the unsharded manifest"
+import json, sys
+w = sys.argv[1]
+def entries(paths):
+    return [json.loads(l) for p in paths for l in open(p)]
+whole = {e["tokens"]: e for e in entries([f"{w}/tok/manifest.jsonl"])}
+parts = entries([f"{w}/shards/manifest.shard-{i}-of-3.jsonl" for i in range(3)])
+assert len(parts) == len({e["tokens"] for e in parts}) == len(whole), "a file in two shards"
+for e in parts:
+    assert e == whole[e["tokens"]], (e, whole[e["tokens"]])
+PY
 
 tokens=$(find "$work/tok" -name '*.npy' | sort | head -1)
 "$bin" decode --model "$model" "$tokens" -o "$work/d2.wav" --depth 2 --iters 8 >/dev/null
@@ -95,5 +111,5 @@ refuse "depth beyond model" "5 but the model has 3" decode --model "$model" "$wo
 refuse "depth beyond file" "holds 3 stages" decode --model "$model" "$tokens" -o "$work/out.wav" --depth 4
 sed -i 's/"model_id":"[0-9a-f]*"/"model_id":"0000000000000000"/' "$work/tok/manifest.jsonl"
 refuse "model id mismatch" "was made by model 0000000000000000" decode --model "$model" "$tokens" -o "$work/out.wav"
-refuse "bad shard" "--shard" encode --model "$model" "$work/corpus" --out "$work/x" --shard 3/2
+refuse "bad shard" "--shard" encode --model "$model" "$work/corpus" --out "$work/x" --shard 2/2
 echo "all end-to-end checks passed"
