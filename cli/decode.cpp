@@ -19,7 +19,7 @@ namespace {
 
 struct DecodeArgs {
   std::string model, tokens, output;
-  int depth = 0, iters = -1, jobs = 0;
+  int depth = -1, iters = -1, jobs = 0;  // depth -1: all stages in the file
 };
 
 // The manifest line describing `tokens`, searched in its folder and the folders above.
@@ -47,9 +47,10 @@ int run_decode(const DecodeArgs& a) {
   const quant::Int16Matrix m = quant::read_npy_i16(a.tokens);
   if (m.cols < 1 || m.rows < 1) throw Error("'" + a.tokens + "' holds no codes (shape [" + std::to_string(m.rows) +
                                           ", " + std::to_string(m.cols) + "])");
-  const int depth = a.depth == 0 ? int(m.cols) : a.depth;
+  const int depth = a.depth == -1 ? int(m.cols) : a.depth;
   if (depth < 1 || depth > m.cols)
-    throw Error("--depth " + std::to_string(a.depth) + ": '" + a.tokens + "' holds " + std::to_string(m.cols) + " stages");
+    throw Error("--depth " + std::to_string(a.depth) + ": expected 1.." + std::to_string(m.cols) + " ('" + a.tokens +
+                "' holds " + std::to_string(m.cols) + " stages)");
   if (depth > cfg.codebooks.stages)
     throw Error("'" + a.tokens + "' has depth " + std::to_string(m.cols) + " but the model has " +
                 std::to_string(cfg.codebooks.stages) + " stages");

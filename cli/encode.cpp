@@ -29,7 +29,7 @@ namespace {
 struct EncodeArgs {
   std::string model, out, shard, flat;
   std::vector<std::string> inputs;
-  int depth = 0, jobs = 0;
+  int depth = -1, jobs = 0;  // depth -1: all the model's stages
 };
 
 void parse_shard(const std::string& s, int& index, int& count) {
@@ -62,10 +62,10 @@ int run_encode(const EncodeArgs& a) {
   quant::ModelInfo info;
   auto tok = quant::load_model(a.model, 1, &info);
   const quant::ExperimentConfig& cfg = tok->config();
-  const int depth = a.depth == 0 ? cfg.codebooks.stages : a.depth;
+  const int depth = a.depth == -1 ? cfg.codebooks.stages : a.depth;
   if (depth < 1 || depth > cfg.codebooks.stages)
-    throw Error("--depth " + std::to_string(a.depth) + ": the model has " + std::to_string(cfg.codebooks.stages) +
-                " stages");
+    throw Error("--depth " + std::to_string(a.depth) + ": expected 1.." + std::to_string(cfg.codebooks.stages) +
+                " (the model has " + std::to_string(cfg.codebooks.stages) + " stages)");
 
   std::vector<audio::InputFile> all = audio::expand_inputs(a.inputs);
   std::vector<audio::InputFile> files;

@@ -108,8 +108,78 @@ refuse "negative code" "outside 0..15" decode --model "$model" "$work/neg.npy" -
 refuse "float tokens" "f32.npy" decode --model "$model" "$work/f32.npy" -o "$work/out.wav"
 refuse "fortran order" "fortran.npy" decode --model "$model" "$work/fortran.npy" -o "$work/out.wav"
 refuse "depth beyond model" "5 but the model has 3" decode --model "$model" "$work/deep.npy" -o "$work/out.wav"
-refuse "depth beyond file" "holds 3 stages" decode --model "$model" "$tokens" -o "$work/out.wav" --depth 4
+refuse "depth beyond file" "expected 1..3" decode --model "$model" "$tokens" -o "$work/out.wav" --depth 4
+cp "$work/tok/manifest.jsonl" "$work/manifest.kept"
 sed -i 's/"model_id":"[0-9a-f]*"/"model_id":"0000000000000000"/' "$work/tok/manifest.jsonl"
 refuse "model id mismatch" "was made by model 0000000000000000" decode --model "$model" "$tokens" -o "$work/out.wav"
+mv "$work/manifest.kept" "$work/tok/manifest.jsonl"
 refuse "bad shard" "--shard" encode --model "$model" "$work/corpus" --out "$work/x" --shard 2/2
+refuse "decode depth 0" "depth" decode --model "$model" "$tokens" -o "$work/out.wav" --depth 0
+refuse "encode depth 0" "depth" encode --model "$model" "$work/corpus" --out "$work/x" --depth 0
+refuse "encode depth beyond model" "the model has 3" encode --model "$model" "$work/corpus" --out "$work/x" --depth 4
+[ ! -e "$work/x" ] || fail "a refused encode left an output folder"
+refuse "missing model (decode)" "nothing.safetensors" decode --model "$work/nothing.safetensors" "$tokens" -o "$work/out.wav"
+refuse "missing model (encode)" "nothing.safetensors" encode --model "$work/nothing.safetensors" "$work/corpus" --out "$work/x"
+refuse "missing model (evaluate)" "nothing.safetensors" evaluate --model "$work/nothing.safetensors" "$work/corpus"
+refuse "missing tokens" "none.npy" decode --model "$model" "$work/none.npy" -o "$work/out.wav"
+head -c 100 "$model" >"$work/cut.safetensors"
+refuse "truncated model" "cut.safetensors" decode --model "$work/cut.safetensors" "$tokens" -o "$work/out.wav"
+[ ! -e "$work/x" ] || fail "a refused encode left an output folder"
+
+# Corrupt token files (NumPy NEP 1 format 1.0: magic \x93NUMPY, version 1.0, uint16 header
+# length, a dict literal padded with spaces to a multiple of 64 bytes, then the data).
+/usr/bin/python3 - "$work" "$tokens" <<'PY'
+import random, struct, sys
+w, good = sys.argv[1], open(sys.argv[2], "rb").read()
+hlen = struct.unpack("<H", good[8:10])[0]
+head, data = good[: 10 + hlen], good[10 + hlen :]
+def npy(header, payload=data, magic=b"\x93NUMPY\x01\x00"):
+    h = header.encode("latin1")
+    h += b" " * ((64 - (10 + len(h) + 1) % 64) % 64) + b"\n"
+    return magic + struct.pack("<H", len(h)) + h + payload
+rows = len(data) // 6
+cases = {
+    "truncated-data": good[: len(good) - 7],
+    "truncated-header": good[:40],
+    "empty": b"",
+    "bad-magic": b"\x93NUMPZ" + good[6:],
+    "version-3": good[:6] + b"\x03\x00" + good[8:],
+    "header-longer-than-file": good[:8] + struct.pack("<H", 60000) + good[10:],
+    "int64": npy("{'descr': '<i8', 'fortran_order': False, 'shape': (%d, 3), }" % rows),
+    "big-endian": npy("{'descr': '>i2', 'fortran_order': False, 'shape': (%d, 3), }" % rows),
+    "one-dim": npy("{'descr': '<i2', 'fortran_order': False, 'shape': (%d,), }" % (rows * 3)),
+    "huge-shape": npy("{'descr': '<i2', 'fortran_order': False, 'shape': (4611686018427387904, 3), }"),
+    "negative-shape": npy("{'descr': '<i2', 'fortran_order': False, 'shape': (-5, 3), }"),
+    "shape-too-big-for-data": npy("{'descr': '<i2', 'fortran_order': False, 'shape': (%d, 3), }" % (rows + 1)),
+    "not-a-dict": npy("[1, 2, 3]"),
+    "no-descr": npy("{'fortran_order': False, 'shape': (%d, 3), }" % rows),
+    "zero-frames": npy("{'descr': '<i2', 'fortran_order': False, 'shape': (0, 3), }", b""),
+}
+for name, b in cases.items():
+    open(f"{w}/corrupt-{name}.npy", "wb").write(b)
+# Seeded random damage to the header bytes: each must be refused or decoded, never crash.
+rng = random.Random(7)
+for i in range(40):
+    b = bytearray(good)
+    for _ in range(rng.randint(1, 4)):
+        b[rng.randrange(6, 10 + hlen)] = rng.randrange(256)
+    open(f"{w}/fuzz-{i:02d}.npy", "wb").write(bytes(b))
+PY
+for f in "$work"/corrupt-*.npy; do
+  refuse "corrupt token file $(basename "$f")" "$(basename "$f")" decode --model "$model" "$f" -o "$work/out.wav"
+done
+for f in "$work"/fuzz-*.npy; do
+  set +e
+  "$bin" decode --model "$model" "$f" -o "$work/out.wav" --iters 2 >/dev/null 2>"$work/err"
+  rc=$?
+  set -e
+  [ $rc -le 2 ] || fail "$(basename "$f"): exit code $rc (a crash?): $(cat "$work/err")"
+  if [ $rc -ne 0 ]; then
+    [ ! -e "$work/out.wav" ] || fail "$(basename "$f"): refused but wrote an output"
+    [ -s "$work/err" ] || fail "$(basename "$f"): refused without a message"
+  fi
+  rm -f "$work/out.wav"
+done
+echo "ok   40 randomly damaged headers: each refused with a message or decoded, none crashed"
+ls "$work"/*.tmp "$work"/.*.tmp 2>/dev/null && fail "temporary files left behind"
 echo "all end-to-end checks passed"
