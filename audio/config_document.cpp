@@ -1,6 +1,8 @@
 // config_document.cpp — YAML parsing with located, typed errors.
 #include "audio/config_document.h"
 
+#include <charconv>
+
 #include <cerrno>
 #include <cmath>
 #include <cstring>
@@ -189,9 +191,32 @@ void ConfigSection::finish() const {
   }
 }
 
+namespace {
+// yaml-cpp stores doubles with 17 significant digits (0.98999999999999999); write the
+// shortest text that reads back to the same double instead (0.99).
+void shorten_floats(YAML::Node node) {
+  if (node.IsMap()) {
+    for (auto it = node.begin(); it != node.end(); ++it) shorten_floats(it->second);
+  } else if (node.IsSequence()) {
+    for (std::size_t i = 0; i < node.size(); ++i) shorten_floats(node[i]);
+  } else if (node.IsScalar()) {
+    const std::string& t = node.Scalar();
+    if (t.size() < 12 || t.find_first_of(".eE") == std::string::npos) return;
+    double v = 0;
+    const auto [end, ec] = std::from_chars(t.data(), t.data() + t.size(), v);
+    if (ec != std::errc() || end != t.data() + t.size()) return;
+    char buf[32];
+    const auto r = std::to_chars(buf, buf + sizeof buf, v);
+    if (r.ec == std::errc()) node = std::string(buf, r.ptr);
+  }
+}
+}  // namespace
+
 std::string emit_yaml(const YAML::Node& node) {
+  YAML::Node copy = YAML::Clone(node);
+  shorten_floats(copy);
   YAML::Emitter out;
-  out << node;
+  out << copy;
   return std::string(out.c_str()) + "\n";
 }
 

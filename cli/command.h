@@ -19,6 +19,7 @@ Run register_encode(CLI::App& app);
 Run register_decode(CLI::App& app);
 Run register_ladder(CLI::App& app);
 Run register_evaluate(CLI::App& app);
+Run register_report(CLI::App& app);
 
 // Settings shared by every command that reads an experiment file.
 struct ConfigArgs {

@@ -29,6 +29,7 @@ int main(int argc, char** argv) {
   add(register_decode);
   add(register_ladder);
   add(register_evaluate);
+  add(register_report);
 
   try {
     app.parse(argc, argv);

@@ -11,11 +11,8 @@ fail() { echo "FAIL: $*"; exit 1; }
 
 mkdir -p "$work/corpus"
 cp "$src"/samples/*.wav "$work/corpus/"
-"$bin" train --out "$work/run" --corpus "$work/corpus" \
-  --set model.channels=16 --set model.latent_dim=8 --set codebooks.stages=3 --set codebooks.codes=16 \
-  --set codebooks.kmeans_init_batches=1 --set codebooks.kmeans_init_vectors=64 \
-  --set train.segment_frames=64 --set train.batch_size=4 --set train.steps=20 --set train.warmup_steps=2 \
-  --set train.validate_every=10 --set train.validation_segments=4 --set train.validation_share=0.3 >"$work/train.log"
+. "$src/tests/tiny_model.sh"
+train_tiny_model "$bin" "$work/corpus" "$work/run" >"$work/train.log"
 model=$work/run/model.safetensors
 [ -f "$model" ] || fail "no model written"
 "$bin" inspect "$model" | grep -q "3 stages x 16 codes" || fail "inspect does not show the codebooks"
