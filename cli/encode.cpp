@@ -61,7 +61,7 @@ int run_encode(const EncodeArgs& a) {
   parse_shard(a.shard, shard, shards);
   quant::ModelInfo info;
   auto tok = quant::load_model(a.model, 1, &info);
-  const quant::ExperimentConfig& cfg = tok->config();
+  const quant::ExperimentConfig cfg = tok->config();  // a copy: tok may be dropped below
   const int depth = a.depth == -1 ? cfg.codebooks.stages : a.depth;
   if (depth < 1 || depth > cfg.codebooks.stages)
     throw Error("--depth " + std::to_string(a.depth) + ": expected 1.." + std::to_string(cfg.codebooks.stages) +
@@ -110,9 +110,7 @@ int run_encode(const EncodeArgs& a) {
   const int K = cfg.codebooks.codes;
   // Many files: one model per core; few long files: one model using every core.
   const WorkerPlan plan = plan_workers(a.jobs, files.size() - std::min(files.size(), done.size()));
-  std::vector<std::unique_ptr<quant::Tokenizer>> models;
-  if (plan.threads_per_worker == 1) models.push_back(std::move(tok));
-  while (int(models.size()) < plan.workers) models.push_back(quant::load_model(a.model, plan.threads_per_worker));
+  const auto models = load_worker_models(a.model, plan, std::move(tok));
   Progress bar("encode", double(files.size()), "files/s");
   double audio_s = 0;
   std::size_t skipped = 0, n = 0;
@@ -153,8 +151,7 @@ int run_encode(const EncodeArgs& a) {
           r.duration = au.duration();
           r.codes = models[std::size_t(w)]->encode(au.samples, depth);
         } catch (const Error& e) {
-          const std::string m = e.what();
-          r.error = m.find(f.path) == std::string::npos ? f.path + ": " + m : m;
+          r.error = naming_file(f.path, e.what());
           return;
         }
         std::vector<std::int16_t> rows(std::size_t(r.codes.size()));

@@ -25,53 +25,11 @@ struct EvaluateArgs {
   int jobs = 0;
 };
 
-double median(std::vector<double> v) {
-  std::sort(v.begin(), v.end());
-  const std::size_t n = v.size();
-  return n == 0 ? 0 : n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
-}
-
-double mean(const std::vector<double>& v) {
-  double s = 0;
-  for (double x : v) s += x;
-  return v.empty() ? 0 : s / double(v.size());
-}
-
-// Applies `reduce` field by field over the files' rows.
-std::vector<quant::DepthRow> reduce_rows(const std::vector<quant::Ladder>& all, double (*reduce)(std::vector<double>)) {
-  std::vector<quant::DepthRow> out = all.front().depths;
-  for (std::size_t d = 0; d < out.size(); ++d) {
-    auto field = [&](double quant::DepthRow::*f) {
-      std::vector<double> v;
-      for (const auto& l : all) v.push_back(l.depths[d].*f);
-      out[d].*f = reduce(v);
-    };
-    for (auto f : {&quant::DepthRow::entropy_kbps, &quant::DepthRow::feature_mel_l1, &quant::DepthRow::feature_mcd_db,
-                   &quant::DepthRow::mel_l1, &quant::DepthRow::mcd_db, &quant::DepthRow::spectral_convergence})
-      field(f);
-  }
-  return out;
-}
-
-quant::OracleRow reduce_oracle(const std::vector<quant::Ladder>& all, double (*reduce)(std::vector<double>)) {
-  quant::OracleRow o;
-  for (auto f : {&quant::OracleRow::mel_l1, &quant::OracleRow::mcd_db, &quant::OracleRow::spectral_convergence}) {
-    std::vector<double> v;
-    for (const auto& l : all) v.push_back(l.oracle.*f);
-    o.*f = reduce(v);
-  }
-  return o;
-}
-
-double mean_of(std::vector<double> v) { return mean(v); }
-
 int run_evaluate(const EvaluateArgs& a) {
   quant::ModelInfo info;
   const std::vector<audio::InputFile> files = audio::expand_inputs(a.inputs);
   const WorkerPlan plan = plan_workers(a.jobs, files.size());
-  std::vector<std::unique_ptr<quant::Tokenizer>> models;
-  models.push_back(quant::load_model(a.model, plan.threads_per_worker, &info));
-  for (int w = 1; w < plan.workers; ++w) models.push_back(quant::load_model(a.model, plan.threads_per_worker));
+  const auto models = load_worker_models(a.model, plan, quant::load_model(a.model, plan.threads_per_worker, &info));
   const quant::ExperimentConfig& cfg = models[0]->config();
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
   quant::UsageStats usage(cfg.codebooks.stages, cfg.codebooks.codes);
@@ -86,8 +44,7 @@ int run_evaluate(const EvaluateArgs& a) {
           const audio::Audio in = audio::load_audio_as(files[i].path, cfg.audio.sample_rate, norm);
           all[i] = quant::depth_ladder(*models[std::size_t(w)], in.samples, {}, /*keep_audio=*/false);
         } catch (const Error& e) {
-          const std::string m = e.what();
-          throw Error(m.find(files[i].path) == std::string::npos ? files[i].path + ": " + m : m);
+          throw Error(naming_file(files[i].path, e.what()));
         }
       },
       [&](std::size_t i) {
@@ -109,10 +66,10 @@ int run_evaluate(const EvaluateArgs& a) {
   }
   for (double& r : reencode) r = frames > 0 ? r / frames : 0;
   // Entropy of the whole corpus's codes, not the mean of per-file entropies.
-  const auto means = reduce_rows(all, mean_of), medians = reduce_rows(all, median);
+  const auto means = reduce_rows(all, mean_of), medians = reduce_rows(all, median_of);
   std::vector<quant::DepthRow> corpus_means = means;
   for (auto& r : corpus_means) r.entropy_kbps = quant::entropy_kbps(stages, r.depth, cfg.code_rate());
-  const quant::OracleRow om = reduce_oracle(all, mean_of), omed = reduce_oracle(all, median);
+  const quant::OracleRow om = reduce_oracle(all, mean_of), omed = reduce_oracle(all, median_of);
 
   if (!a.csv.empty()) {
     std::string csv = "source,depth,kbps,entropy_kbps,feature_mel_l1,feature_mcd_db,mel_l1,mcd_db,spectral_convergence\n";

@@ -8,7 +8,7 @@
 #include <thread>
 #include <vector>
 
-#include "quant/tokenizer.h"
+#include "quant/checkpoint.h"
 
 namespace tessera::cli {
 
@@ -17,6 +17,14 @@ WorkerPlan plan_workers(int threads, std::size_t items) {
   // Two files per worker at least, or the last long file leaves the other cores idle.
   if (t > 1 && items >= std::size_t(2 * t)) return {t, 1};
   return {1, t};
+}
+
+std::vector<std::unique_ptr<quant::Tokenizer>> load_worker_models(const std::string& path, const WorkerPlan& plan,
+                                                                  std::unique_ptr<quant::Tokenizer> first) {
+  std::vector<std::unique_ptr<quant::Tokenizer>> models;
+  if (first && first->pool().size() == plan.threads_per_worker) models.push_back(std::move(first));
+  while (int(models.size()) < std::max(1, plan.workers)) models.push_back(quant::load_model(path, plan.threads_per_worker));
+  return models;
 }
 
 void run_file_workers(std::size_t n, int workers, const std::function<void(std::size_t, int)>& work,

@@ -5,6 +5,11 @@
 #pragma once
 #include <cstddef>
 #include <functional>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "quant/tokenizer.h"
 
 namespace tessera::cli {
 
@@ -15,6 +20,11 @@ struct WorkerPlan {
   int threads_per_worker = 1;
 };
 WorkerPlan plan_workers(int threads, std::size_t items);
+
+// plan.workers models of `path` with plan.threads_per_worker threads each; `first` (already
+// loaded, e.g. to read the model id) is kept as worker 0 when its thread count fits.
+std::vector<std::unique_ptr<quant::Tokenizer>> load_worker_models(const std::string& path, const WorkerPlan& plan,
+                                                                  std::unique_ptr<quant::Tokenizer> first);
 
 // Calls work(i, w) for every i in [0, n) on `workers` threads (w = worker index), then
 // commit(i) for i = 0, 1, 2, ... in order, under a lock, as soon as item i and all before

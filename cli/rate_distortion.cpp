@@ -1,9 +1,48 @@
 // rate_distortion.cpp — JSON and Markdown forms of a rate–distortion result.
 #include "cli/rate_distortion.h"
 
+#include <algorithm>
 #include <cstdio>
 
 namespace tessera::cli {
+
+double median_of(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  const std::size_t n = v.size();
+  return n == 0 ? 0 : n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+}
+
+double mean_of(std::vector<double> v) {
+  double s = 0;
+  for (double x : v) s += x;
+  return v.empty() ? 0 : s / double(v.size());
+}
+
+std::vector<quant::DepthRow> reduce_rows(const std::vector<quant::Ladder>& all, Reduce reduce) {
+  if (all.empty()) return {};
+  std::vector<quant::DepthRow> out = all.front().depths;
+  for (std::size_t d = 0; d < out.size(); ++d) {
+    auto field = [&](double quant::DepthRow::*f) {
+      std::vector<double> v;
+      for (const auto& l : all) v.push_back(l.depths[d].*f);
+      out[d].*f = reduce(v);
+    };
+    for (auto f : {&quant::DepthRow::entropy_kbps, &quant::DepthRow::feature_mel_l1, &quant::DepthRow::feature_mcd_db,
+                   &quant::DepthRow::mel_l1, &quant::DepthRow::mcd_db, &quant::DepthRow::spectral_convergence})
+      field(f);
+  }
+  return out;
+}
+
+quant::OracleRow reduce_oracle(const std::vector<quant::Ladder>& all, Reduce reduce) {
+  quant::OracleRow o;
+  for (auto f : {&quant::OracleRow::mel_l1, &quant::OracleRow::mcd_db, &quant::OracleRow::spectral_convergence}) {
+    std::vector<double> v;
+    for (const auto& l : all) v.push_back(l.oracle.*f);
+    o.*f = reduce(v);
+  }
+  return o;
+}
 
 nlohmann::json rate_distortion_json(const std::string& model_id, double frame_rate, int codebook_size,
                                     const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,

@@ -22,6 +22,15 @@ nlohmann::json rate_distortion_json(const std::string& model_id, double frame_ra
                                     const std::vector<quant::StageUsage>& stages,
                                     const std::vector<double>& reencode_agreement = {});
 
+// Summaries over files: field by field over every file's ladder rows (all ladders must
+// have the same depths). kbps is copied; entropy_kbps is reduced like the rest, so set it
+// from the pooled stage usage when the corpus entropy is wanted.
+double mean_of(std::vector<double> v);
+double median_of(std::vector<double> v);
+using Reduce = double (*)(std::vector<double>);
+std::vector<quant::DepthRow> reduce_rows(const std::vector<quant::Ladder>& all, Reduce reduce);
+quant::OracleRow reduce_oracle(const std::vector<quant::Ladder>& all, Reduce reduce);
+
 // Markdown tables for people: one row per depth and the oracle, then one per stage.
 std::string rate_distortion_table(const std::vector<quant::DepthRow>& depths, const quant::OracleRow& oracle,
                                   const std::vector<quant::StageUsage>& stages, int codebook_size,

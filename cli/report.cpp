@@ -14,6 +14,7 @@
 #include "cli/file_workers.h"
 #include "cli/output_path.h"
 #include "cli/progress.h"
+#include "cli/rate_distortion.h"
 #include "cli/report/html_page.h"
 #include "cli/report/png_writer.h"
 #include "cli/report/spectrogram_image.h"
@@ -83,10 +84,9 @@ int run_report(const ReportArgs& a) {
                 "use `tessera evaluate` for a corpus");
   const WorkerPlan plan = plan_workers(a.jobs, files.size() * 4);  // each file is several syntheses
   quant::ModelInfo info;
-  std::vector<std::unique_ptr<quant::Tokenizer>> models;
-  models.push_back(quant::load_model(a.model, plan.threads_per_worker, &info));
   const int workers = std::min<int>(plan.workers, int(files.size()));
-  while (int(models.size()) < workers) models.push_back(quant::load_model(a.model, plan.threads_per_worker));
+  const auto models = load_worker_models(a.model, {workers, plan.threads_per_worker},
+                                         quant::load_model(a.model, plan.threads_per_worker, &info));
   const quant::ExperimentConfig& cfg = models[0]->config();
   const std::vector<int> depths = parse_depths(a.depths, cfg.codebooks.stages);
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
@@ -185,26 +185,17 @@ int run_report(const ReportArgs& a) {
                       "<th class=\"num\">audio MCD dB</th><th class=\"num\">SC</th></tr>\n";
   std::vector<quant::StageUsage> stages;
   for (int s = 0; s < cfg.codebooks.stages; ++s) stages.push_back(usage.stage(s));
-  const double n = double(ladders.size());
-  for (std::size_t d = 0; d < depths.size(); ++d) {
-    quant::DepthRow m;
-    for (const auto& l : ladders) {
-      const auto& r = l.depths[d];
-      m.feature_mel_l1 += r.feature_mel_l1 / n, m.feature_mcd_db += r.feature_mcd_db / n, m.mel_l1 += r.mel_l1 / n;
-      m.mcd_db += r.mcd_db / n, m.spectral_convergence += r.spectral_convergence / n;
-    }
-    m.kbps = quant::nominal_kbps(cfg.code_rate(), depths[d], cfg.codebooks.codes);
-    m.entropy_kbps = quant::entropy_kbps(stages, depths[d], cfg.code_rate());
-    points.push_back({m.kbps, m.mcd_db, depths[d]});
-    table += "<tr><td>" + std::to_string(depths[d]) + "</td><td class=\"num\">" + fixed(m.kbps, "%.3f") +
+  std::vector<quant::DepthRow> means = reduce_rows(ladders, mean_of);
+  for (auto& m : means) m.entropy_kbps = quant::entropy_kbps(stages, m.depth, cfg.code_rate());
+  for (const auto& m : means) {
+    points.push_back({m.kbps, m.mcd_db, m.depth});
+    table += "<tr><td>" + std::to_string(m.depth) + "</td><td class=\"num\">" + fixed(m.kbps, "%.3f") +
              "</td><td class=\"num\">" + fixed(m.entropy_kbps, "%.3f") + "</td><td class=\"num\">" +
              fixed(m.feature_mel_l1, "%.3f") + "</td><td class=\"num\">" + fixed(m.feature_mcd_db, "%.2f") +
              "</td><td class=\"num\">" + fixed(m.mel_l1, "%.3f") + "</td><td class=\"num\">" + fixed(m.mcd_db, "%.2f") +
              "</td><td class=\"num\">" + fixed(m.spectral_convergence, "%.3f") + "</td></tr>\n";
   }
-  quant::OracleRow o;
-  for (const auto& l : ladders)
-    o.mel_l1 += l.oracle.mel_l1 / n, o.mcd_db += l.oracle.mcd_db / n, o.spectral_convergence += l.oracle.spectral_convergence / n;
+  const quant::OracleRow o = reduce_oracle(ladders, mean_of);
   table += "<tr><td>oracle</td><td class=\"num\">–</td><td class=\"num\">–</td><td class=\"num\">–</td><td class=\"num\">–"
            "</td><td class=\"num\">" + fixed(o.mel_l1, "%.3f") + "</td><td class=\"num\">" + fixed(o.mcd_db, "%.2f") +
            "</td><td class=\"num\">" + fixed(o.spectral_convergence, "%.3f") + "</td></tr>\n</table>\n";

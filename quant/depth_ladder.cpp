@@ -34,8 +34,10 @@ Ladder depth_ladder(Tokenizer& model, const std::vector<float>& samples, std::ve
   const Eigen::MatrixXf mel = audio::log_mel(cfg.audio, samples);
   lad.codes = model.encode(mel, S);
   lad.stages = usage_of_codes(lad.codes, cfg.codebooks.codes);
+  // Decoded once at full depth: for the re-encode check and, below, for the full-depth row.
+  const Eigen::MatrixXf full = model.decode(lad.codes, S);
   {
-    const Eigen::MatrixXi again = model.encode(model.decode(lad.codes, S), S);
+    const Eigen::MatrixXi again = model.encode(full, S);
     const Eigen::Index L = std::min(again.rows(), lad.codes.rows());
     for (int s = 0; s < S; ++s)
       lad.reencode_agreement.push_back(
@@ -53,7 +55,7 @@ Ladder depth_ladder(Tokenizer& model, const std::vector<float>& samples, std::ve
   if (progress) progress(++done, total);
 
   for (int d : depths) {
-    const Eigen::MatrixXf dec = model.decode(lad.codes, d);
+    const Eigen::MatrixXf dec = d == S ? full : model.decode(lad.codes, d);
     const Eigen::Index T = std::min(dec.cols(), mel.cols());
     DepthRow r;
     r.depth = d;

@@ -9,12 +9,7 @@
 #   - nominal kbps = frame rate × depth × log2 K; entropy kbps never above it.
 # Needs espeak-ng and /usr/bin/python3 with numpy and scipy (installed by .ci/install-deps).
 # Usage: rate_distortion_quality.sh TESSERA_BINARY SOURCE_DIR
-set -euo pipefail
-bin=$1
-src=$2
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-fail() { echo "FAIL: $*"; exit 1; }
+. "$(dirname "$0")/../cli_common.sh" "$@"
 if ! command -v espeak-ng >/dev/null || ! /usr/bin/python3 -c "import numpy, scipy" 2>/dev/null; then
   echo "SKIP: needs espeak-ng and /usr/bin/python3 with numpy and scipy (bash .ci/install-deps)"
   exit 0

@@ -4,16 +4,10 @@
 # exists, every WAV is valid and as long as its source, then open the page in headless
 # Chromium (browser_check.py) and keep a screenshot as a test artifact.
 # Usage: report_page.sh TESSERA_BINARY SOURCE_DIR
-set -euo pipefail
-bin=$1
-src=$2
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-fail() { echo "FAIL: $*"; exit 1; }
+. "$(dirname "$0")/../cli_common.sh" "$@"
 artifacts=$(cd "$(dirname "$bin")" && pwd)/test-artifacts
 mkdir -p "$artifacts"
 
-. "$src/tests/tiny_model.sh"
 train_tiny_model "$bin" "$src/samples" "$work/run" >"$work/train.log"
 model=$work/run/model.safetensors
 "$bin" report --model "$model" "$src"/samples/*.wav -o "$work/page" --depths 1,3 >"$work/report.log" ||

@@ -2,16 +2,10 @@
 # tokens_end_to_end.sh — train a tiny model on the committed sample WAVs through the real
 # binary, then encode (resumable, sharded, flat), decode, ladder, evaluate and inspect, and
 # check that bad token files are refused. Usage: tokens_end_to_end.sh TESSERA_BINARY SOURCE_DIR
-set -euo pipefail
-bin=$1
-src=$2
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-fail() { echo "FAIL: $*"; exit 1; }
+. "$(dirname "$0")/../cli_common.sh" "$@"
 
 mkdir -p "$work/corpus"
 cp "$src"/samples/*.wav "$work/corpus/"
-. "$src/tests/tiny_model.sh"
 train_tiny_model "$bin" "$work/corpus" "$work/run" >"$work/train.log"
 model=$work/run/model.safetensors
 [ -f "$model" ] || fail "no model written"
