@@ -2,6 +2,7 @@
 #include "audio/audio_io.h"
 
 #include <algorithm>
+#include <cerrno>
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
@@ -185,12 +186,15 @@ SaveReport save_wav(const std::string& path, const std::vector<float>& samples, 
   sfinfo.channels = 1;
   sfinfo.format = SF_FORMAT_WAV | (format == SampleFormat::pcm16 ? SF_FORMAT_PCM_16 : SF_FORMAT_FLOAT);
   {
+    // On a failed write the system's reason (errno: "no space left on device") says more
+    // than libsndfile's summary of it.
+    errno = 0;
     SndfileHandle f(sf_open_fd(out.fd(), SFM_WRITE, &sfinfo, /*close_desc=*/SF_FALSE));
-    if (!f) throw Error("cannot write '" + path + "': " + sndfile_message(nullptr));
+    if (!f) throw Error("cannot write '" + path + "': " + (errno ? system_message(errno) : sndfile_message(nullptr)));
     const sf_count_t n = sf_count_t(samples.size());
     const sf_count_t wrote = format == SampleFormat::pcm16 ? sf_writef_short(f.get(), pcm.data(), n)
                                                            : sf_writef_float(f.get(), scaled.data(), n);
-    if (wrote != n) throw Error("cannot write '" + path + "': " + sndfile_message(f.get()));
+    if (wrote != n) throw Error("cannot write '" + path + "': " + (errno ? system_message(errno) : sndfile_message(f.get())));
     sf_write_sync(f.get());
   }
   out.commit();
