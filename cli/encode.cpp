@@ -84,6 +84,8 @@ int run_encode(const EncodeArgs& a) {
   std::error_code ec;
   if (fs::exists(a.out, ec) && !fs::is_directory(a.out, ec))
     throw Error("--out '" + a.out + "': it is a file, not a folder");
+  std::unique_ptr<AtomicFile> flat;   // opened first: a bad --flat path is refused before --out is made
+  if (!a.flat.empty()) flat = std::make_unique<AtomicFile>(a.flat);
   const bool fresh_out = !fs::exists(a.out, ec);   // made by this run: removed if nothing lands in it
   fs::create_directories(a.out);
   const std::string manifest = (fs::path(a.out) / (shards == 1 ? std::string("manifest.jsonl")
@@ -111,8 +113,6 @@ int run_encode(const EncodeArgs& a) {
     write_file_atomic(manifest, kept);
   }
   AppendFile log(manifest);   // whole lines only, even when the disk fills
-  std::unique_ptr<AtomicFile> flat;
-  if (!a.flat.empty()) flat = std::make_unique<AtomicFile>(a.flat);
 
   const double code_rate = cfg.code_rate();
   const int K = cfg.codebooks.codes;
@@ -205,12 +205,13 @@ int run_encode(const EncodeArgs& a) {
   // every file was encoded; otherwise it is not written at all (its temporary file goes).
   if (flat && failed.empty()) flat->commit();
   const std::size_t encoded = files.size() - skipped - failed.size();
-  if (fresh_out && encoded == 0 && skipped == 0) {   // leave no empty output folder behind
+  const bool nothing = fresh_out && encoded == 0 && skipped == 0;
+  if (nothing) {   // leave no empty output folder behind
     fs::remove(manifest, ec);
     fs::remove(a.out, ec);   // only if empty
   }
-  std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\nmanifest  %s\n",
-              encoded, skipped, depth, a.out.c_str(), manifest.c_str());
+  std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\n", encoded, skipped, depth, a.out.c_str());
+  if (!nothing) std::printf("manifest  %s\n", manifest.c_str());
   if (!failed.empty())
     throw Error(std::to_string(failed.size()) + " of " + std::to_string(files.size()) +
                 " files could not be encoded (each named above); the rest are done, and a rerun retries only these");

@@ -60,7 +60,7 @@ while IFS=$'\t' read -r name want pattern cmd; do
   if [ $rc -ge 124 ]; then why="exit code $rc: a signal, a crash or a hang"
   elif [ "$rc" != "$want" ]; then why="exit code $rc, want $want"
   elif ! grep -q -E -e "$pattern" "$work/stderr"; then why="stderr does not match /$pattern/"
-  elif [ "$want" != 0 ] && ! grep -q '^error: ' "$work/stderr"; then why="no 'error: ' line on stderr"
+  elif [ "$want" != 0 ] && [ "$(grep -c '^error: ' "$work/stderr")" -ne 1 ]; then why="not exactly one 'error: ' line"
   elif [ -n "$changed" ]; then why="files created, changed or removed: $(echo $changed)"
   elif [ -n "$temps" ]; then why="temporary files left: $(echo $temps)"
   elif [ "$want" = 0 ] && ! compgen -G "$KEEP*" >/dev/null; then why="accepted, but nothing written to $KEEP"
