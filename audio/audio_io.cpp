@@ -2,6 +2,7 @@
 #include "audio/audio_io.h"
 
 #include <algorithm>
+#include <cerrno>
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
@@ -35,6 +36,24 @@ std::string describe_format(int format) {
   return major + ", " + minor;
 }
 
+std::string sndfile_message(SNDFILE* f) { return house_style(sf_strerror(f)); }
+
+// Level facts for the callers' warnings. A run of 3 or more consecutive samples at full
+// scale is the usual sign of clipping (common practice in clip detectors).
+void measure_level(const std::vector<float>& x, SourceInfo& info) {
+  constexpr float kFull = 32766.0f / 32768.0f;   // within one 16-bit step of full scale
+  info.peak = 0;
+  info.clipped_samples = 0;
+  std::size_t run = 0;
+  for (std::size_t i = 0; i <= x.size(); ++i) {
+    const float a = i < x.size() ? std::fabs(x[i]) : 0.0f;
+    info.peak = std::max(info.peak, a);
+    if (a >= kFull) { ++run; continue; }
+    if (run >= 3) info.clipped_samples += (long long)run;
+    run = 0;
+  }
+}
+
 constexpr int kMaxChannels = 256;
 constexpr int kMinRate = 1000, kMaxRate = 768000;
 
@@ -46,9 +65,11 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
     throw Error("cannot open audio file '" + path + "': no such file");
   if (std::filesystem::is_directory(path, ec))
     throw Error("cannot open audio file '" + path + "': it is a folder");
+  if (std::filesystem::is_regular_file(path, ec) && std::filesystem::file_size(path, ec) == 0 && !ec)
+    throw Error("audio file '" + path + "' is empty (0 bytes)");
   SF_INFO sfinfo{};
   SndfileHandle f(sf_open(path.c_str(), SFM_READ, &sfinfo));
-  if (!f) throw Error("cannot open audio file '" + path + "': " + sf_strerror(nullptr));
+  if (!f) throw Error("cannot open audio file '" + path + "': " + sndfile_message(nullptr));
   if (sfinfo.channels <= 0 || sfinfo.channels > kMaxChannels)
     throw Error("audio file '" + path + "' has " + std::to_string(sfinfo.channels) +
                 " channels; expected 1 to " + std::to_string(kMaxChannels));
@@ -96,7 +117,7 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
     }
   }
   if (sf_error(f.get()) != SF_ERR_NO_ERROR)
-    throw Error("cannot read audio file '" + path + "': " + sf_strerror(f.get()));
+    throw Error("cannot read audio file '" + path + "': " + sndfile_message(f.get()));
   if (out.samples.empty()) throw Error("audio file '" + path + "' holds no samples (truncated?)");
   if (sf_count_t(out.samples.size()) < sfinfo.frames)
     throw Error("audio file '" + path + "' is truncated: its header promises " + std::to_string(sfinfo.frames) +
@@ -105,6 +126,7 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
     if (!std::isfinite(out.samples[i]))
       throw Error("audio file '" + path + "' holds a non-finite sample (NaN or Inf) at " +
                   std::to_string(double(i) / out.sample_rate) + " s");
+  if (info) measure_level(out.samples, *info);
   return out;
 }
 
@@ -164,12 +186,15 @@ SaveReport save_wav(const std::string& path, const std::vector<float>& samples, 
   sfinfo.channels = 1;
   sfinfo.format = SF_FORMAT_WAV | (format == SampleFormat::pcm16 ? SF_FORMAT_PCM_16 : SF_FORMAT_FLOAT);
   {
+    // On a failed write the system's reason (errno: "no space left on device") says more
+    // than libsndfile's summary of it.
+    errno = 0;
     SndfileHandle f(sf_open_fd(out.fd(), SFM_WRITE, &sfinfo, /*close_desc=*/SF_FALSE));
-    if (!f) throw Error("cannot write '" + path + "': " + sf_strerror(nullptr));
+    if (!f) throw Error("cannot write '" + path + "': " + (errno ? system_message(errno) : sndfile_message(nullptr)));
     const sf_count_t n = sf_count_t(samples.size());
     const sf_count_t wrote = format == SampleFormat::pcm16 ? sf_writef_short(f.get(), pcm.data(), n)
                                                            : sf_writef_float(f.get(), scaled.data(), n);
-    if (wrote != n) throw Error("cannot write '" + path + "': " + sf_strerror(f.get()));
+    if (wrote != n) throw Error("cannot write '" + path + "': " + (errno ? system_message(errno) : sndfile_message(f.get())));
     sf_write_sync(f.get());
   }
   out.commit();

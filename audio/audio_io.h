@@ -18,6 +18,8 @@ struct SourceInfo {
   int sample_rate = 0;
   long long frames = 0;
   std::string format;  // e.g. "WAV, 16-bit PCM"
+  float peak = 0;                // largest |sample| after downmixing, before any normalisation
+  long long clipped_samples = 0; // samples in runs of 3 or more at full scale (a clipped recording)
 };
 
 // Reads WAV, FLAC, OGG/Vorbis, AIFF (any bit depth libsndfile knows), averages the

@@ -56,7 +56,12 @@ void add_list(const fs::path& list, std::vector<InputFile>& out) {
     line = line.substr(b);
     if (line.empty() || line[0] == '#') continue;
     fs::path p(line);
-    const std::string rel = p.is_relative() ? p.generic_string() : p.filename().string();
+    // Outputs mirror `relative` below an output folder, so it must not climb out of it: a
+    // line that is absolute or climbs above the list's folder ("../x.wav") keeps only its
+    // file name (two such names colliding are refused by the command that writes).
+    const fs::path normal = p.lexically_normal();
+    const bool inside = normal.is_relative() && !normal.empty() && *normal.begin() != "..";
+    const std::string rel = inside ? normal.generic_string() : p.filename().string();
     if (p.is_relative()) p = list.parent_path() / p;
     std::error_code ec;
     if (!fs::is_regular_file(p, ec))

@@ -7,7 +7,8 @@ namespace tessera::audio {
 
 struct InputFile {
   std::string path;      // as opened
-  std::string relative;  // path below its input root (folder inputs) or the file name
+  std::string relative;  // path below its input root (folder inputs) or the file name;
+                         // never absolute, never climbing out with ".."
 };
 
 // True for the extensions libsndfile reads that tessera accepts from folders:

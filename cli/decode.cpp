@@ -30,7 +30,7 @@ bool find_manifest_entry(const fs::path& tokens, quant::ManifestEntry& out) {
     for (const auto& e : fs::directory_iterator(dir, ec)) {
       const std::string name = e.path().filename().string();
       if (!name.starts_with("manifest") || e.path().extension() != ".jsonl") continue;
-      int bad = 0;
+      std::vector<std::string> bad;   // damaged lines cannot vouch for a file: ignored
       for (const auto& m : quant::read_manifest(e.path().string(), &bad))
         if (fs::weakly_canonical(dir / m.tokens, ec) == abs) { out = m; return true; }
     }

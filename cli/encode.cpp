@@ -6,10 +6,10 @@
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
-#include <fstream>
 #include <map>
 #include <set>
 
+#include "audio/append_file.h"
 #include "audio/atomic_file.h"
 #include "audio/audio_io.h"
 #include "audio/error.h"
@@ -17,6 +17,7 @@
 #include "audio/log_mel.h"
 #include "cli/command.h"
 #include "cli/file_workers.h"
+#include "cli/output_path.h"
 #include "cli/progress.h"
 #include "quant/checkpoint.h"
 #include "quant/npy.h"
@@ -75,36 +76,43 @@ int run_encode(const EncodeArgs& a) {
   std::map<std::string, std::string> owner;
   for (const auto& f : files) {
     const std::string t = tokens_path_for(f.relative);
+    if (!quant::stays_inside(t)) throw Error("'" + f.path + "': its output '" + t + "' would leave the output folder");
     auto [it, fresh] = owner.emplace(t, f.path);
     if (!fresh) throw Error("'" + f.path + "' and '" + it->second + "' would both write '" + t + "'");
   }
 
+  std::error_code ec;
+  if (fs::exists(a.out, ec) && !fs::is_directory(a.out, ec))
+    throw Error("--out '" + a.out + "': it is a file, not a folder");
+  std::unique_ptr<AtomicFile> flat;   // opened first: a bad --flat path is refused before --out is made
+  if (!a.flat.empty()) flat = std::make_unique<AtomicFile>(a.flat);
+  const bool fresh_out = !fs::exists(a.out, ec);   // made by this run: removed if nothing lands in it
   fs::create_directories(a.out);
   const std::string manifest = (fs::path(a.out) / (shards == 1 ? std::string("manifest.jsonl")
                                                                : "manifest.shard-" + std::to_string(shard) + "-of-" +
                                                                      std::to_string(shards) + ".jsonl"))
                                    .string();
   // Resume: keep entries whose token file is complete and made by this model at this depth.
-  int bad = 0;
+  std::vector<std::string> bad;
   std::map<std::string, quant::ManifestEntry> done;
   for (auto& e : quant::read_manifest(manifest, &bad)) {
-    if (e.model_id != info.model_id || e.depth != depth) continue;
+    // Only token paths this run would write are opened: a line naming any other path
+    // (even one that stayed inside the folder) is not ours to read.
+    if (e.model_id != info.model_id || e.depth != depth || !owner.count(e.tokens)) continue;
     try {
       const quant::Int16Matrix m = quant::read_npy_i16((fs::path(a.out) / e.tokens).string());
       if (m.rows == e.frames && m.cols == e.depth) done[e.tokens] = e;
     } catch (const Error&) {
     }
   }
-  if (bad) std::fprintf(stderr, "note: %d damaged manifest line(s) dropped (an interrupted run?)\n", bad);
+  for (const std::string& why : bad) std::fprintf(stderr, "note: %s; line dropped\n", why.c_str());
   {
     std::string kept;
     for (const auto& f : files)
       if (auto it = done.find(tokens_path_for(f.relative)); it != done.end()) kept += quant::to_json_line(it->second) + "\n";
     write_file_atomic(manifest, kept);
   }
-  std::ofstream log(manifest, std::ios::app);
-  std::unique_ptr<std::ofstream> flat;
-  if (!a.flat.empty()) flat = std::make_unique<std::ofstream>(a.flat + ".tmp");
+  AppendFile log(manifest);   // whole lines only, even when the disk fills
 
   const double code_rate = cfg.code_rate();
   const int K = cfg.codebooks.codes;
@@ -125,6 +133,7 @@ int run_encode(const EncodeArgs& a) {
     Eigen::MatrixXi codes;
     double duration = 0;
     bool skipped = false;
+    std::vector<std::string> warnings;  // odd but usable input (cli/output_path.h)
     std::string error;  // a bad or too-short file is reported and skipped, not fatal
   };
   std::vector<std::string> failed;
@@ -147,7 +156,9 @@ int run_encode(const EncodeArgs& a) {
           return;
         }
         try {
-          const audio::Audio au = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm);
+          audio::SourceInfo src;
+          const audio::Audio au = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm, &src);
+          r.warnings = input_warnings(src, f.path, cfg.audio);
           r.duration = au.duration();
           r.codes = models[std::size_t(w)]->encode(au.samples, depth);
         } catch (const Error& e) {
@@ -162,6 +173,7 @@ int run_encode(const EncodeArgs& a) {
       },
       [&](std::size_t i) {
         Result& r = results[i];
+        for (const std::string& m : r.warnings) std::fprintf(stderr, "\rwarning: %s\n", m.c_str());
         if (!r.error.empty()) {
           std::fprintf(stderr, "\rskipped   %s\n", r.error.c_str());
           failed.push_back(r.error);
@@ -173,7 +185,7 @@ int run_encode(const EncodeArgs& a) {
         } else {
           quant::ManifestEntry e{files[i].path, tokens_path_for(files[i].relative), r.duration, r.codes.rows(), depth,
                                  cfg.audio.sample_rate, code_rate, info.model_id, K};
-          log << quant::to_json_line(e) << "\n" << std::flush;
+          log.append_line(quant::to_json_line(e));
           audio_s += r.duration;
         }
         if (flat) {
@@ -181,24 +193,25 @@ int run_encode(const EncodeArgs& a) {
           std::string line;
           for (Eigen::Index y = 0; y < r.codes.rows(); ++y)
             for (Eigen::Index c = 0; c < r.codes.cols(); ++c)
-              line += (line.empty() ? "" : " ") + std::to_string(r.codes(y, c) + int(c) * K);
-          *flat << line << "\n";
+              line.append(line.empty() ? "" : " ").append(std::to_string(r.codes(y, c) + int(c) * K));
+          line += '\n';
+          flat->write(line);
         }
         r.codes.resize(0, 0);  // committed: free it
         bar.update(double(++n), status());
       });
   bar.finish(status());
-  if (flat) {
-    // The flat file holds one line per input in input order, so it is only complete when
-    // every file was encoded; otherwise it is not written at all.
-    flat->close();
-    std::error_code ec;
-    if (!failed.empty()) fs::remove(a.flat + ".tmp", ec);
-    else if (!*flat) throw Error("cannot write '" + a.flat + "'");
-    else fs::rename(a.flat + ".tmp", a.flat);
+  // The flat file holds one line per input in input order, so it is only complete when
+  // every file was encoded; otherwise it is not written at all (its temporary file goes).
+  if (flat && failed.empty()) flat->commit();
+  const std::size_t encoded = files.size() - skipped - failed.size();
+  const bool nothing = fresh_out && encoded == 0 && skipped == 0;
+  if (nothing) {   // leave no empty output folder behind
+    fs::remove(manifest, ec);
+    fs::remove(a.out, ec);   // only if empty
   }
-  std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\nmanifest  %s\n",
-              files.size() - skipped - failed.size(), skipped, depth, a.out.c_str(), manifest.c_str());
+  std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\n", encoded, skipped, depth, a.out.c_str());
+  if (!nothing) std::printf("manifest  %s\n", manifest.c_str());
   if (!failed.empty())
     throw Error(std::to_string(failed.size()) + " of " + std::to_string(files.size()) +
                 " files could not be encoded (each named above); the rest are done, and a rerun retries only these");

@@ -26,7 +26,9 @@ int run_ladder(const LadderArgs& a) {
   auto tok = quant::load_model(a.model, a.jobs, &info);
   const quant::ExperimentConfig& cfg = tok->config();
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
-  const audio::Audio in = audio::load_audio_as(a.input, cfg.audio.sample_rate, norm);
+  audio::SourceInfo src;
+  const audio::Audio in = audio::load_audio_as(a.input, cfg.audio.sample_rate, norm, &src);
+  print_input_warnings(src, a.input, cfg.audio);
   fs::create_directories(a.out);
   std::error_code ec;
   for (const char* name : {"original.wav", "oracle.wav"})

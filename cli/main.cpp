@@ -34,9 +34,11 @@ int main(int argc, char** argv) {
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
-    // Help and version exit 0; every usage error exits 2 (CLI11's own codes are ≥ 100).
-    const int code = app.exit(e);
-    return code == 0 ? 0 : 2;
+    // Help and version exit 0; every usage error exits 2 (CLI11's own codes are ≥ 100)
+    // with one "error: ..." line like every other error, and a pointer to the help.
+    if (e.get_exit_code() == 0) return app.exit(e);
+    std::fprintf(stderr, "error: %s\nrun 'tessera --help' or 'tessera COMMAND --help' for usage\n", e.what());
+    return 2;
   }
   try {
     for (auto& [sub, run] : runs)

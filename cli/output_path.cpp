@@ -30,6 +30,37 @@ void warn_about_level(const audio::SaveReport& rep, const std::string& path) {
     std::fprintf(stderr, "note: '%s' was peak-limited by %.1f dB\n", path.c_str(), rep.gain_db);
 }
 
+std::vector<std::string> input_warnings(const audio::SourceInfo& src, const std::string& path,
+                                        const audio::AudioConfig& cfg) {
+  std::vector<std::string> w;
+  char buf[512];
+  if (src.channels > 2) {
+    std::snprintf(buf, sizeof buf, "'%s' has %d channels; they are averaged into one", path.c_str(), src.channels);
+    w.push_back(buf);
+  }
+  // Below -90 dBFS nothing is left but the last bit of 16-bit audio (about -90.3 dBFS).
+  if (src.peak < 3.1623e-5f) {
+    std::snprintf(buf, sizeof buf, "'%s' is silent (peak below -90 dBFS); its codes describe silence", path.c_str());
+    w.push_back(buf);
+  } else if (src.clipped_samples > 0) {
+    std::snprintf(buf, sizeof buf, "'%s' looks clipped: %lld of %lld samples sit at full scale in runs of 3 or more",
+                  path.c_str(), src.clipped_samples, src.frames);
+    w.push_back(buf);
+  }
+  const double seconds = src.sample_rate > 0 ? double(src.frames) / src.sample_rate : 0;
+  const double window = double(cfg.win_length) / cfg.sample_rate;
+  if (seconds < window) {
+    std::snprintf(buf, sizeof buf, "'%s' lasts %.3f s, less than one analysis window (%.3f s); its frames are "
+                  "mostly padding", path.c_str(), seconds, window);
+    w.push_back(buf);
+  }
+  return w;
+}
+
+void print_input_warnings(const audio::SourceInfo& src, const std::string& path, const audio::AudioConfig& cfg) {
+  for (const std::string& m : input_warnings(src, path, cfg)) std::fprintf(stderr, "warning: %s\n", m.c_str());
+}
+
 audio::AudioConfig load_audio_settings(const ConfigArgs& args) {
   ConfigDocument doc = args.config.empty() ? ConfigDocument::empty() : ConfigDocument::load(args.config);
   for (const auto& o : args.overrides) doc.apply_override(o);

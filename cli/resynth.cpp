@@ -33,6 +33,7 @@ int run_resynth(const ResynthArgs& a) {
   audio::SourceInfo src;
   const double* norm = cfg.normalize_input ? &cfg.normalize_dbfs : nullptr;
   const audio::Audio in = audio::load_audio_as(a.input, cfg.sample_rate, norm, &src);
+  print_input_warnings(src, a.input, cfg);
   if (!a.json) {
     std::printf("input     %s (%s, %d ch, %d Hz, %.2f s)\n", a.input.c_str(), src.format.c_str(),
                 src.channels, src.sample_rate, in.duration());

@@ -29,7 +29,7 @@ std::string to_json_line(const ManifestEntry& e) {
 
 ManifestEntry parse_manifest_line(const std::string& line, const std::string& where) {
   const nlohmann::json j = nlohmann::json::parse(line, nullptr, /*allow_exceptions=*/false);
-  if (!j.is_object()) throw Error(where + ": not a JSON object");
+  if (!j.is_object()) throw Error(where + ": not a JSON object (damaged line?)");
   auto str = [&](const char* k) {
     if (!j.contains(k) || !j[k].is_string()) throw Error(where + ": field '" + k + "' must be a string");
     return j[k].get<std::string>();
@@ -58,7 +58,7 @@ ManifestEntry parse_manifest_line(const std::string& line, const std::string& wh
   return e;
 }
 
-std::vector<ManifestEntry> read_manifest(const std::string& path, int* bad) {
+std::vector<ManifestEntry> read_manifest(const std::string& path, std::vector<std::string>* bad) {
   std::ifstream in(path);
   std::vector<ManifestEntry> out;
   if (!in) return out;
@@ -69,9 +69,9 @@ std::vector<ManifestEntry> read_manifest(const std::string& path, int* bad) {
     if (line.empty()) continue;
     try {
       out.push_back(parse_manifest_line(line, path + ":" + std::to_string(n)));
-    } catch (const Error&) {
+    } catch (const Error& e) {
       if (!bad) throw;
-      ++*bad;
+      bad->push_back(e.what());
     }
   }
   return out;

@@ -27,9 +27,10 @@ std::string to_json_line(const ManifestEntry& e);  // without the newline
 // JSON, a missing or mistyped field, or a tokens path that is absolute or climbs out ("..").
 ManifestEntry parse_manifest_line(const std::string& line, const std::string& where);
 
-// Reads a whole manifest. Malformed lines are skipped and counted in *bad (a run killed
-// while appending leaves at most one); nullptr makes them errors instead.
-std::vector<ManifestEntry> read_manifest(const std::string& path, int* bad = nullptr);
+// Reads a whole manifest. Malformed lines (a run killed while appending leaves at most one;
+// an edited file may hold more) are skipped and their messages, each naming the file and
+// line, appended to *bad; nullptr makes them errors instead.
+std::vector<ManifestEntry> read_manifest(const std::string& path, std::vector<std::string>* bad = nullptr);
 
 // True when `relative` stays inside its folder (no absolute path, no ".." component).
 bool stays_inside(const std::string& relative);

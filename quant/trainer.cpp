@@ -9,6 +9,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "audio/append_file.h"
 #include "audio/atomic_file.h"
 #include "audio/error.h"
 #include "quant/checkpoint.h"
@@ -139,12 +140,12 @@ void Trainer::log_metrics(const StepReport& r) {
   }
   j["perplexity"] = ppl;
   j["codes_used"] = used;
-  std::ofstream(metrics_path(), std::ios::app) << j.dump() << "\n";
+  append_line_to_file(metrics_path(), j.dump());
 }
 
 void Trainer::log_validation(const ValidationReport& v) {
   nlohmann::json j = {{"step", step_}, {"validation", {{"loss", v.loss}, {"mel_l1_by_depth", v.mel_l1}}}};
-  std::ofstream(metrics_path(), std::ios::app) << j.dump() << "\n";
+  append_line_to_file(metrics_path(), j.dump());
 }
 
 void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const StepReport&)>& on_step) {
@@ -152,7 +153,7 @@ void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const 
   fs::create_directories(dir_);
   write_file_atomic((fs::path(dir_) / "config.yaml").string(), resolved_yaml(cfg_));
   if (step_ == 0) {
-    std::ofstream(metrics_path(), std::ios::trunc).close();
+    write_file_atomic(metrics_path(), "");
     kmeans_init();
   }
   const auto t0 = std::chrono::steady_clock::now();

@@ -185,3 +185,23 @@ TEST_CASE("a failed save leaves no file behind") {
   for (const auto& e : fs::directory_iterator(dir)) FAIL("left behind: " << e.path());
   fs::remove_all(dir);
 }
+
+TEST_CASE("loading measures the peak and the samples clipped in runs of 3 or more") {
+  const fs::path dir = scratch_dir();
+  std::vector<float> square(1600);
+  for (std::size_t i = 0; i < square.size(); ++i) square[i] = (i / 40) % 2 ? 1.0f : -1.0f;   // 200 Hz at 16 kHz
+  write_with_sndfile(dir / "square.wav", SF_FORMAT_WAV | SF_FORMAT_PCM_16, 1, 16000, square);
+  std::vector<float> peaks = tone(300, 16000, 0.1, 0.5);
+  peaks[100] = peaks[500] = 1.0f;   // isolated full-scale samples: not clipping
+  write_with_sndfile(dir / "peaks.wav", SF_FORMAT_WAV | SF_FORMAT_PCM_16, 1, 16000, peaks);
+  write_with_sndfile(dir / "silent.wav", SF_FORMAT_WAV | SF_FORMAT_PCM_16, 1, 16000, std::vector<float>(1600, 0.0f));
+  SourceInfo info;
+  load_audio((dir / "square.wav").string(), &info);
+  CHECK(info.clipped_samples == 1600);
+  load_audio((dir / "peaks.wav").string(), &info);
+  CHECK(info.clipped_samples == 0);
+  CHECK(info.peak == doctest::Approx(1.0).epsilon(1e-4));
+  load_audio((dir / "silent.wav").string(), &info);
+  CHECK(info.peak == 0.0f);
+  fs::remove_all(dir);
+}
