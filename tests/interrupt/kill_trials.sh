@@ -6,7 +6,7 @@
 #     layout; the next --resume loads it whole), and the finished run's model.safetensors
 #     is byte-identical to an uninterrupted run's (same threads), metrics.jsonl has each
 #     logged step once, as the uninterrupted run has;
-#   encode: the rerun finishes, every .npy loads with NumPy and equals the uninterrupted
+#   encode (one thread, so that a run lasts as long as the reference): the rerun finishes, every .npy loads with NumPy and equals the uninterrupted
 #     output, the manifest has one valid JSON line per input and ends with a newline.
 # Usage: kill_trials.sh TESSERA_BINARY SOURCE_DIR [TRAIN_TRIALS [ENCODE_TRIALS [KILLS]]]
 #   (defaults 20, 5 and 2 kills per trial). Prints a summary; exits 1 on any failure.
@@ -100,13 +100,13 @@ echo "train:  $train_trials trials x $kills SIGKILLs at uniform random times in 
 for d in a b c d e f g h i j k l; do mkdir -p "$work/many/$d" && cp "$src"/samples/*.wav "$work/many/$d/"; done
 inputs=$(find "$work/many" -name '*.wav' | wc -l)
 t0=$(now)
-"$bin" encode --model "$work/ref/model.safetensors" "$work/many" --out "$work/tok-ref" >/dev/null 2>&1 || fail "reference encode failed"
+"$bin" encode --model "$work/ref/model.safetensors" "$work/many" --out "$work/tok-ref" --jobs 1 >/dev/null 2>&1 || fail "reference encode failed"
 encode_s=$(awk -v a="$t0" -v b="$(now)" 'BEGIN { print b - a }')
 elanded=0
 for trial in $(seq 1 "$encode_trials"); do
   out=$work/tok-$trial
   for _ in $(seq 1 "$kills"); do
-    "$bin" encode --model "$work/ref/model.safetensors" "$work/many" --out "$out" >/dev/null 2>&1 &
+    "$bin" encode --model "$work/ref/model.safetensors" "$work/many" --out "$out" --jobs 1 >/dev/null 2>&1 &
     pid=$!
     sleep "$(random_delay "$encode_s")"
     if kill -9 "$pid" 2>/dev/null; then elanded=$((elanded + 1)); fi
