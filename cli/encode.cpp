@@ -14,6 +14,7 @@
 #include "audio/audio_io.h"
 #include "audio/error.h"
 #include "audio/file_list.h"
+#include "audio/folder_lock.h"
 #include "audio/log_mel.h"
 #include "cli/command.h"
 #include "cli/file_workers.h"
@@ -87,11 +88,28 @@ int run_encode(const EncodeArgs& a) {
   std::unique_ptr<AtomicFile> flat;   // opened first: a bad --flat path is refused before --out is made
   if (!a.flat.empty()) flat = std::make_unique<AtomicFile>(a.flat);
   const bool fresh_out = !fs::exists(a.out, ec);   // made by this run: removed if nothing lands in it
-  fs::create_directories(a.out);
+  // One writer per manifest: shards of one corpus may share the folder, a second run of
+  // the same shard may not.
+  const FolderLock lock(a.out, "encode",
+                        shards == 1 ? ".tessera.lock"
+                                    : ".tessera.shard-" + std::to_string(shard) + "-of-" + std::to_string(shards) + ".lock");
+  if (!lock.takeover().empty())
+    std::fprintf(stderr, "note: took over the lock of %s, which is no longer running\n", lock.takeover().c_str());
   const std::string manifest = (fs::path(a.out) / (shards == 1 ? std::string("manifest.jsonl")
                                                                : "manifest.shard-" + std::to_string(shard) + "-of-" +
                                                                      std::to_string(shards) + ".jsonl"))
                                    .string();
+  // Temporary files of a killed run of this shard (other shards' files are left alone).
+  {
+    std::set<std::string> mine{manifest}, folders{a.out};
+    for (const auto& f : files) {
+      const fs::path p = fs::path(a.out) / tokens_path_for(f.relative);
+      mine.insert(p.string());
+      folders.insert(p.parent_path().string());
+    }
+    for (const std::string& d : folders)
+      remove_stale_temporaries(d, [&](const std::string& t) { return mine.count(t) != 0; });
+  }
   // Resume: keep entries whose token file is complete and made by this model at this depth.
   std::vector<std::string> bad;
   std::map<std::string, quant::ManifestEntry> done;
@@ -192,8 +210,10 @@ int run_encode(const EncodeArgs& a) {
           // Stages interleaved frame by frame; stage s offset by s·K, one line per file.
           std::string line;
           for (Eigen::Index y = 0; y < r.codes.rows(); ++y)
-            for (Eigen::Index c = 0; c < r.codes.cols(); ++c)
-              line.append(line.empty() ? "" : " ").append(std::to_string(r.codes(y, c) + int(c) * K));
+            for (Eigen::Index c = 0; c < r.codes.cols(); ++c) {
+              if (!line.empty()) line += ' ';
+              line += std::to_string(r.codes(y, c) + int(c) * K);
+            }
           line += '\n';
           flat->write(line);
         }

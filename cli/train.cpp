@@ -6,7 +6,9 @@
 #include <filesystem>
 #include <unistd.h>
 
+#include "audio/atomic_file.h"
 #include "audio/error.h"
+#include "audio/folder_lock.h"
 #include "cli/command.h"
 #include "cli/progress.h"
 #include "quant/experiment_config.h"
@@ -35,8 +37,13 @@ int run_train(TrainArgs& a) {
   if (!a.corpus.empty()) sets.push_back("train.corpus=" + a.corpus);
   const quant::ExperimentConfig cfg = quant::load_experiment(a.config.config, sets);
   namespace fs = std::filesystem;
+  const FolderLock lock(a.out, "train");
+  if (!lock.takeover().empty())
+    std::fprintf(stderr, "note: took over the lock of %s, which is no longer running\n", lock.takeover().c_str());
+  remove_stale_temporaries(a.out);
   std::error_code ec;
-  if (!a.resume && fs::exists(fs::path(a.out) / "model.safetensors", ec))
+  if (!a.resume && (fs::exists(fs::path(a.out) / "model.safetensors", ec) ||
+                    fs::exists(fs::path(a.out) / "train-state.safetensors", ec)))
     throw Error("'" + a.out + "' already holds a model; pass --resume to continue it, or choose another --out");
 
   std::printf("corpus    %s\n", cfg.train.corpus.c_str());
@@ -49,8 +56,14 @@ int run_train(TrainArgs& a) {
               trainer.model().slab().count(), cfg.codebooks.stages, cfg.codebooks.codes, cfg.codebooks.dim,
               cfg.code_rate(), cfg.code_rate() * cfg.codebooks.stages * std::log2(double(cfg.codebooks.codes)));
   if (a.resume) {
-    trainer.resume();
+    const quant::ResumeReport rep = trainer.resume();
     std::printf("resumed   at step %lld of %d\n", (long long)trainer.step(), cfg.train.steps);
+    if (rep.model_rewritten)
+      std::fprintf(stderr, "note: model.safetensors was missing or older than the training state "
+                           "(interrupted between the two writes); rewritten from the state\n");
+    if (rep.metrics_lines_dropped)
+      std::fprintf(stderr, "note: %d metrics.jsonl line(s) past step %lld dropped; those steps are logged again\n",
+                   rep.metrics_lines_dropped, (long long)trainer.step());
   }
   std::printf("training  %d steps, batch %d x %d frames, %d threads -> %s\n", cfg.train.steps, cfg.train.batch_size,
               cfg.train.segment_frames, quant::resolve_threads(cfg.train.threads), a.out.c_str());

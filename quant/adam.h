@@ -14,6 +14,8 @@
 #include <span>
 #include <vector>
 
+#include "quant/float_buffer.h"
+
 namespace tessera::quant {
 
 struct AdamConfig {
@@ -42,7 +44,7 @@ class Adam {
 
  private:
   AdamConfig cfg_;
-  std::vector<float> m_, v_;
+  FloatBuffer m_, v_;
   std::int64_t t_ = 0;
 };
 

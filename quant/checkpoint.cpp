@@ -14,15 +14,40 @@ Shape to_shape(const std::vector<int>& v) { return Shape(v.begin(), v.end()); }
 
 }  // namespace
 
+void add_model_tensors(SafetensorsWriter& w, const Tokenizer& tok, const std::string& prefix) {
+  const ExperimentConfig& cfg = tok.config();
+  for (const ParamEntry& e : tok.slab().entries())
+    w.add<float>(prefix + e.name, to_shape(e.shape), tok.slab().params() + e.ref.offset);
+  const auto& c = cfg.codebooks;
+  w.add<float>(prefix + "codebooks", {c.stages, c.codes, c.dim}, tok.codebooks().codebooks().data());
+  w.add<float>(prefix + "norm.mean", {cfg.model.n_mels}, tok.stats().mean.data());
+  w.add<float>(prefix + "norm.std", {cfg.model.n_mels}, tok.stats().std.data());
+}
+
+void read_model_tensors(const SafetensorsReader& r, Tokenizer& tok, const std::string& prefix) {
+  const ExperimentConfig& cfg = tok.config();
+  for (const ParamEntry& e : tok.slab().entries())
+    r.read_into<float>(prefix + e.name, to_shape(e.shape), tok.slab().params() + e.ref.offset);
+  const auto& c = cfg.codebooks;
+  r.read_into<float>(prefix + "codebooks", {c.stages, c.codes, c.dim}, tok.codebooks().codebooks().data());
+  tok.codebooks().reset_ema();
+  r.read_into<float>(prefix + "norm.mean", {cfg.model.n_mels}, tok.stats().mean.data());
+  r.read_into<float>(prefix + "norm.std", {cfg.model.n_mels}, tok.stats().std.data());
+  for (float v : tok.stats().std)
+    if (!(v > 0) || !std::isfinite(v))
+      throw Error(r.path() + ": tensor '" + prefix + "norm.std' holds a non-positive or non-finite value");
+}
+
+std::string model_id_of(const Tokenizer& tok) {
+  SafetensorsWriter w;
+  add_model_tensors(w, tok, "");
+  return w.content_id();
+}
+
 std::string save_model(const Tokenizer& tok, const std::string& path, std::int64_t step) {
   const ExperimentConfig& cfg = tok.config();
   SafetensorsWriter w;
-  for (const ParamEntry& e : tok.slab().entries())
-    w.add<float>(e.name, to_shape(e.shape), tok.slab().params() + e.ref.offset);
-  const auto& cb = tok.codebooks();
-  w.add<float>("codebooks", {cfg.codebooks.stages, cfg.codebooks.codes, cfg.codebooks.dim}, cb.codebooks().data());
-  w.add<float>("norm.mean", {cfg.model.n_mels}, tok.stats().mean.data());
-  w.add<float>("norm.std", {cfg.model.n_mels}, tok.stats().std.data());
+  add_model_tensors(w, tok, "");
   const std::string id = w.content_id();
   char rate[32];
   std::snprintf(rate, sizeof rate, "%.6g", cfg.code_rate());
@@ -54,19 +79,11 @@ std::unique_ptr<Tokenizer> load_model(const std::string& path, int threads, Mode
     throw Error(std::string("the config stored in the model is invalid: ") + e.what());
   }
   auto tok = std::make_unique<Tokenizer>(cfg, threads);
-  for (const ParamEntry& e : tok->slab().entries())
-    r.read_into<float>(e.name, to_shape(e.shape), tok->slab().params() + e.ref.offset);
-  const auto& c = cfg.codebooks;
-  r.read_into<float>("codebooks", {c.stages, c.codes, c.dim}, tok->codebooks().codebooks().data());
-  tok->codebooks().reset_ema();
-  r.read_into<float>("norm.mean", {cfg.model.n_mels}, tok->stats().mean.data());
-  r.read_into<float>("norm.std", {cfg.model.n_mels}, tok->stats().std.data());
+  read_model_tensors(r, *tok, "");
   const std::size_t expected = tok->slab().entries().size() + 3;
   if (r.tensors().size() != expected)
     throw Error(path + ": holds " + std::to_string(r.tensors().size()) + " tensors; the stored config needs " +
                 std::to_string(expected));
-  for (float v : tok->stats().std)
-    if (!(v > 0) || !std::isfinite(v)) throw Error(path + ": tensor 'norm.std' holds a non-positive or non-finite value");
   const std::string id = r.content_id();
   if (meta.count("model_id") && r.metadata_at("model_id") != id)
     throw Error(path + ": the weights do not match the stored model id (file damaged or edited)");

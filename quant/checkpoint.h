@@ -19,6 +19,19 @@ struct ModelInfo {
   std::string config_yaml;   // resolved experiment
 };
 
+class SafetensorsWriter;
+class SafetensorsReader;
+
+// The model's tensors (layer weights, "codebooks", "norm.mean", "norm.std") with `prefix`
+// before each name: "" in the model file, "model/" in the self-contained training state.
+// The writer keeps pointers into `tok`.
+void add_model_tensors(SafetensorsWriter& w, const Tokenizer& tok, const std::string& prefix);
+// Reads them into `tok`, whose config gives every shape; throws tessera::Error naming the
+// file and tensor on a missing or misshapen tensor or a non-positive 'norm.std'.
+void read_model_tensors(const SafetensorsReader& r, Tokenizer& tok, const std::string& prefix);
+// The model id that save_model(tok, ...) stores (a hash of the tensors, not the metadata).
+std::string model_id_of(const Tokenizer& tok);
+
 // Writes `tok` to `path` (temporary file, fsync, rename); returns the model id.
 std::string save_model(const Tokenizer& tok, const std::string& path, std::int64_t step);
 

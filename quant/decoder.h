@@ -9,6 +9,7 @@
 #include <string>
 #include <vector>
 
+#include "quant/float_buffer.h"
 #include "quant/layers/conv1d.h"
 #include "quant/layers/conv_transpose1d.h"
 #include "quant/layers/residual_unit.h"
@@ -54,7 +55,7 @@ class Decoder {
     PaddedTensor ga, gb, gx;                           // backward gradients
     PaddedTensor io;                                   // output / its gradient, interleaved
     ResidualUnit::Scratch scratch;
-    std::vector<float> grads;                          // private gradients (lanes ≥ 1)
+    FloatBuffer grads;                                 // private gradients (lanes ≥ 1)
     Tensor chunk;                                      // output frames of a time chunk
   };
 

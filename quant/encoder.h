@@ -13,6 +13,7 @@
 #include <string>
 #include <vector>
 
+#include "quant/float_buffer.h"
 #include "quant/layers/conv1d.h"
 #include "quant/layers/residual_unit.h"
 #include "quant/model_config.h"
@@ -63,7 +64,7 @@ class Encoder {
     PaddedTensor ga, gb;                               // backward gradients (ping-pong)
     PaddedTensor io;                                   // output / its gradient, interleaved
     ResidualUnit::Scratch scratch;
-    std::vector<float> grads;                          // private gradients (lanes ≥ 1)
+    FloatBuffer grads;                                 // private gradients (lanes ≥ 1)
     Tensor chunk;                                      // latent frames of a time chunk
   };
 

@@ -6,6 +6,7 @@
 #include <cstddef>
 #include <vector>
 
+#include "quant/float_buffer.h"
 #include "quant/param_slab.h"
 #include "quant/thread_pool.h"
 
@@ -23,7 +24,7 @@ inline LaneItems lane_items(int B, int l, int n) {
 // The ParamView lane l writes gradients through: the slab itself for lane 0, else the
 // lane's private buffer for `range`, which is all zeros between backward passes
 // (reduce_lane_grads clears it as it reads it).
-inline ParamView lane_params(ParamSlab& slab, ParamRef range, int l, std::vector<float>& priv) {
+inline ParamView lane_params(ParamSlab& slab, ParamRef range, int l, FloatBuffer& priv) {
   if (l == 0) return slab.view();
   if (priv.size() != range.size) priv.assign(range.size, 0.0f);
   return {slab.params(), priv.data(), range.offset};

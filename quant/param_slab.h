@@ -8,6 +8,8 @@
 #include <string_view>
 #include <vector>
 
+#include "quant/float_buffer.h"
+
 namespace tessera::quant {
 
 // Where one tensor lives in the slab.
@@ -61,7 +63,7 @@ class ParamSlab {
   const ParamEntry* find(std::string_view name) const;
 
  private:
-  std::vector<float> params_, grads_;
+  FloatBuffer params_, grads_;
   std::vector<ParamEntry> entries_;
 };
 

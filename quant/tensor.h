@@ -15,6 +15,8 @@
 #include <cstddef>
 #include <vector>
 
+#include "quant/float_buffer.h"
+
 namespace tessera::quant {
 
 // A view of B sequences of C channels × T frames: frame t of item b starts at
@@ -97,7 +99,7 @@ class Tensor {
 
  private:
   int B_ = 0, C_ = 0, T_ = 0;
-  std::vector<float> buf_;
+  FloatBuffer buf_;
 };
 
 enum class Layout {
@@ -150,7 +152,7 @@ class PaddedTensor {
 
   int B_ = 0, C_ = 0, T_ = 0, margin_ = 0;
   Layout layout_ = Layout::items;
-  std::vector<float> buf_;
+  FloatBuffer buf_;
 };
 
 // The layout a buffer should take to match view v.

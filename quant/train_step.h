@@ -30,8 +30,6 @@ class TrainStep {
 
   Adam& adam() { return adam_; }
   Adam* codebook_adam() { return codebook_adam_.get(); }
-  // Rebinds to another model of the same shape (after loading a checkpoint).
-  void rebind(Tokenizer& model) { m_ = &model; }
 
  private:
   Tokenizer* m_;

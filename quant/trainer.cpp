@@ -20,7 +20,8 @@ namespace fs = std::filesystem;
 namespace {
 
 constexpr const char* kStateFormat = "tessera-train-state";
-constexpr int kStateVersion = 1;
+constexpr int kStateVersion = 2;   // 2: self-contained (the model's tensors under "model/")
+constexpr const char* kStateModelPrefix = "model/";
 
 std::string rng_text(const std::mt19937_64& rng) {
   std::ostringstream s;
@@ -204,12 +205,16 @@ void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const 
   if (step_ < t.steps) checkpoint();  // stopped early: keep what was done
 }
 
+// A checkpoint is committed by one rename: the state file holds everything a resume needs
+// (weights, codebooks and statistics under "model/", the optimiser, the generators) and
+// the id of the model it belongs to. It is written first; model.safetensors follows. A
+// run killed between the two leaves an older model file, which resume() rewrites.
 void Trainer::checkpoint() {
   fs::create_directories(dir_);
-  const std::string id = save_model(*tok_, model_path(), step_);
   ResidualCodebooks& rvq = tok_->codebooks();
   const CodebookConfig& c = cfg_.codebooks;
   SafetensorsWriter w;
+  add_model_tensors(w, *tok_, kStateModelPrefix);
   const Adam& adam = step_fn_->adam();
   const auto n = std::int64_t(adam.size());
   w.add<float>("adam.m", {n}, adam.m().data());
@@ -228,7 +233,8 @@ void Trainer::checkpoint() {
                       rvq.restart_pool_state().data());
   w.set_metadata("format", kStateFormat);
   w.set_metadata("format_version", std::to_string(kStateVersion));
-  w.set_metadata("model_id", id);
+  w.set_metadata("config", resolved_yaml(cfg_));
+  w.set_metadata("model_id", model_id_of(*tok_));
   w.set_metadata("step", std::to_string(step_));
   w.set_metadata("adam_t", std::to_string(adam.steps()));
   w.set_metadata("rng", rng_text(rng_));
@@ -236,29 +242,35 @@ void Trainer::checkpoint() {
   w.set_metadata("validation_loss", std::to_string(last_val_loss_));
   w.set_metadata("validation_mel_l1", std::to_string(last_val_l1_));
   w.write(state_path());
+  save_model(*tok_, model_path(), step_);
 }
 
-void Trainer::resume() {
-  if (!fs::exists(model_path()) || !fs::exists(state_path()))
-    throw Error("cannot resume: '" + dir_ + "' holds no model.safetensors and train-state.safetensors");
-  ModelInfo info;
-  std::unique_ptr<Tokenizer> loaded = load_model(model_path(), cfg_.train.threads, &info);
-  if (architecture_of(loaded->config()) != architecture_of(cfg_))
-    throw Error("cannot resume: the audio:, model: or codebooks: settings differ from those of '" + model_path() +
-                "' (only train: settings may change on resume)");
+ResumeReport Trainer::resume() {
+  if (!fs::exists(state_path()))
+    throw Error("cannot resume: '" + dir_ + "' holds no train-state.safetensors (no checkpoint was completed; " +
+                "train again without --resume)");
   SafetensorsReader r(state_path());
   if (!r.metadata().count("format") || r.metadata_at("format") != kStateFormat)
     throw Error(state_path() + ": not a tessera training state");
   if (r.metadata_at("format_version") != std::to_string(kStateVersion))
-    throw Error(state_path() + ": unsupported training-state version '" + r.metadata_at("format_version") + "'");
-  if (r.metadata_at("model_id") != info.model_id)
-    throw Error(state_path() + ": belongs to another model than '" + model_path() +
-                "' (interrupted between the two writes?); train again without --resume");
-  // Weights, codebooks and statistics from the model file; the rest from the state file.
-  tok_ = std::move(loaded);
+    throw Error(state_path() + ": unsupported training-state version '" + r.metadata_at("format_version") +
+                "' (this tessera resumes version " + std::to_string(kStateVersion) + ")");
+  ExperimentConfig stored;
+  try {
+    stored = parse_experiment(r.metadata_at("config"), state_path() + " [config]");
+  } catch (const Error& e) {
+    throw Error(std::string("the config stored in the training state is invalid: ") + e.what());
+  }
+  if (architecture_of(stored) != architecture_of(cfg_))
+    throw Error("cannot resume: the audio:, model: or codebooks: settings differ from those of '" + state_path() +
+                "' (only train: settings may change on resume)");
+  // Weights, codebooks and statistics go into the model built for this run's config.
   ResidualCodebooks& rvq = tok_->codebooks();
   const CodebookConfig& c = cfg_.codebooks;
-  step_fn_->rebind(*tok_);
+  read_model_tensors(r, *tok_, kStateModelPrefix);
+  const std::string id = model_id_of(*tok_);
+  if (r.metadata_at("model_id") != id)
+    throw Error(state_path() + ": the weights do not match the stored model id (file damaged or edited)");
   const auto n = std::int64_t(tok_->slab().count());
   step_fn_->adam().restore(parse_int(r, "adam_t"), r.get<float>("adam.m", {n}), r.get<float>("adam.v", {n}));
   if (Adam* ca = step_fn_->codebook_adam()) {
@@ -275,18 +287,34 @@ void Trainer::resume() {
   rng_from_text(rng_, r.metadata_at("rng"), state_path());
   rng_from_text(rvq.rng(), r.metadata_at("codebook_rng"), state_path());
   step_ = parse_int(r, "step");
-  if (step_ != info.step) throw Error(state_path() + ": step differs from the model file's");
   last_val_loss_ = std::stod(r.metadata_at("validation_loss"));
   last_val_l1_ = std::stod(r.metadata_at("validation_mel_l1"));
-  // Keep the metrics of the steps that the checkpoint covers; later lines are redone.
+
+  ResumeReport rep;
+  // The model file of this checkpoint is missing or older when a run was killed between
+  // the two writes of checkpoint(); it is rebuilt from the state.
+  ModelInfo info;
+  try {
+    load_model(model_path(), 1, &info);
+  } catch (const Error&) {
+  }
+  if (info.model_id != id || info.step != step_) {
+    save_model(*tok_, model_path(), step_);
+    rep.model_rewritten = true;
+  }
+  // Keep the metrics of the steps that the checkpoint covers; later lines (and a line cut
+  // short by the kill) are dropped, and those steps are logged again.
   std::ifstream in(metrics_path());
   std::string line, kept;
   while (std::getline(in, line)) {
     const auto j = nlohmann::json::parse(line, nullptr, /*allow_exceptions=*/false);
     if (j.is_object() && j.contains("step") && j["step"].is_number_integer() && j["step"].get<std::int64_t>() <= step_)
       kept += line + "\n";
+    else
+      ++rep.metrics_lines_dropped;
   }
   write_file_atomic(metrics_path(), kept);
+  return rep;
 }
 
 }  // namespace tessera::quant

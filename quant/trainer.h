@@ -37,6 +37,11 @@ struct ValidationReport {
   std::vector<double> mel_l1;      // per depth 1..S, natural-log units
 };
 
+struct ResumeReport {
+  bool model_rewritten = false;    // model.safetensors was missing or older than the state
+  int metrics_lines_dropped = 0;   // metrics.jsonl lines past the checkpoint (or cut short)
+};
+
 class Trainer {
  public:
   // Loads the corpus (cfg.train.corpus) and builds the model; nothing is written yet.
@@ -44,14 +49,16 @@ class Trainer {
           const std::function<void(std::size_t, std::size_t)>& load_progress = {});
   ~Trainer();
 
-  // Continues from RUN/model.safetensors + RUN/train-state.safetensors (throws if absent).
-  void resume();
+  // Continues from RUN/train-state.safetensors, the last complete checkpoint (throws if
+  // absent or from another architecture); rewrites RUN/model.safetensors if it is missing
+  // or older (killed between the two writes) and drops metrics.jsonl lines past the step.
+  ResumeReport resume();
   // Trains up to cfg.train.steps (or until `stop` becomes true; then a checkpoint is
   // written before returning). Calls on_step after every step.
   void run(const std::atomic<bool>* stop, const std::function<void(const StepReport&)>& on_step);
   // Full-depth and per-depth validation on the fixed held-out segments.
   ValidationReport validate();
-  // Writes model.safetensors and train-state.safetensors atomically.
+  // Writes train-state.safetensors, then model.safetensors, each atomically.
   void checkpoint();
 
   std::int64_t step() const { return step_; }

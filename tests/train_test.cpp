@@ -105,7 +105,7 @@ TEST_CASE("resume refuses a changed architecture and a missing checkpoint") {
   ExperimentConfig cfg = tiny_config(root / "corpus", 10);
   {
     Trainer t(cfg, (root / "empty").string());
-    CHECK_THROWS_WITH_AS(t.resume(), doctest::Contains("holds no model"), Error);
+    CHECK_THROWS_WITH_AS(t.resume(), doctest::Contains("holds no train-state"), Error);
   }
   {
     Trainer t(cfg, (root / "run").string());
@@ -114,5 +114,40 @@ TEST_CASE("resume refuses a changed architecture and a missing checkpoint") {
   cfg.codebooks.codes = 64;
   Trainer other(cfg, (root / "run").string());
   CHECK_THROWS_WITH_AS(other.resume(), doctest::Contains("settings differ"), Error);
+  fs::remove_all(root);
+}
+
+TEST_CASE("a run killed between the state and the model write resumes from the state") {
+  const fs::path root = scratch("between");
+  testing::write_synthetic_corpus(root / "corpus", 4, 1.5, 16000, 5);
+  ExperimentConfig cfg = tiny_config(root / "corpus", 20);
+  cfg.train.checkpoint_every = 10;
+  const fs::path run = root / "run";
+  std::string id20;
+  {
+    Trainer t(cfg, run.string());
+    std::atomic<bool> stop{false};
+    // Keep the model file of step 10 aside and put it back after step 20: the state is
+    // then one checkpoint ahead of the model, as after a kill between the two renames.
+    t.run(&stop, [&](const StepReport& r) {
+      if (r.step == 10) fs::copy_file(t.model_path(), root / "model-10.safetensors");
+    });
+    id20 = model_id_of(t.model());
+  }
+  fs::copy_file(root / "model-10.safetensors", run / "model.safetensors", fs::copy_options::overwrite_existing);
+  Trainer again(cfg, run.string());
+  const ResumeReport rep = again.resume();
+  CHECK(rep.model_rewritten);
+  CHECK(again.step() == 20);
+  ModelInfo info;
+  load_model(again.model_path(), 1, &info);
+  CHECK(info.model_id == id20);
+  CHECK(info.step == 20);
+  // A missing model file is rebuilt the same way.
+  fs::remove(run / "model.safetensors");
+  Trainer third(cfg, run.string());
+  CHECK(third.resume().model_rewritten);
+  load_model(third.model_path(), 1, &info);
+  CHECK(info.model_id == id20);
   fs::remove_all(root);
 }

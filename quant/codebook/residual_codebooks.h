@@ -45,6 +45,7 @@
 #include "quant/codebook/codebook_config.h"
 #include "quant/codebook/kmeans.h"
 #include "quant/codebook/usage_stats.h"
+#include "quant/float_buffer.h"
 
 namespace tessera::quant {
 
@@ -133,17 +134,17 @@ class ResidualCodebooks {
   CodebookConfig cfg_;
   std::mt19937_64 rng_;
   NearestSearch search_;
-  std::vector<float> codebook_, grad_;         // S x K x D
-  std::vector<float> cluster_size_;            // S x K, EMA
-  std::vector<float> embed_sum_;               // S x K x D, EMA
+  FloatBuffer codebook_, grad_;                // S x K x D
+  FloatBuffer cluster_size_;                   // S x K, EMA
+  FloatBuffer embed_sum_;                      // S x K x D, EMA
   std::vector<std::int32_t> since_used_;       // S x K, train steps of the stage since last use
-  std::vector<float> ring_;                    // S x P x D recent residuals of each stage
+  FloatBuffer ring_;                           // S x P x D recent residuals of each stage
   std::vector<std::int64_t> ring_state_;       // fill per stage, then next slot per stage
   Eigen::VectorXf c_sq_;                       // S·K cached ‖c‖²
   bool norms_stale_ = true;
   // Of the last forward.
-  std::vector<float> counts_;                  // S x K vectors per code
-  std::vector<float> sums_;                    // S x K x D sum of residuals per code
+  FloatBuffer counts_;                         // S x K vectors per code
+  FloatBuffer sums_;                           // S x K x D sum of residuals per code
   std::vector<double> stage_mse_;              // S
   Eigen::Index n_ = 0;
   int depth_ = 0;
@@ -151,7 +152,7 @@ class ResidualCodebooks {
   Eigen::MatrixXf r_;                          // D x cap residual
   Eigen::MatrixXf g_;                          // D x cap Σ_s r_{s+1}, for ∂commitment/∂z
   Eigen::MatrixXi idx_;                        // cap x S codes
-  std::vector<float> dist_;                    // cap
+  FloatBuffer dist_;                           // cap
   std::vector<int> perm_;                      // P, restart draws without replacement
   // Statistics.
   UsageStats usage_;
