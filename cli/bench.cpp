@@ -67,7 +67,9 @@ void measure_long_encode(const quant::ExperimentConfig& cfg, double seconds, ben
   const bench::ChildResult r =
       bench::run_program({self, "encode", "--model", model, wav, "--out", (dir / "codes").string()});
   f.long_wall_s = (bench::now_ms() - t0) / 1e3;
-  if (r.exit_code != 0) throw Error("tessera encode of the long file failed (exit code " + std::to_string(r.exit_code) + ")");
+  if (r.exit_code != 0)
+    throw Error("tessera encode of the long file failed (exit code " + std::to_string(r.exit_code) +
+                "): " + r.output.substr(r.output.size() > 400 ? r.output.size() - 400 : 0));
   f.long_s = seconds, f.long_peak_mb = r.peak_mb;
 }
 

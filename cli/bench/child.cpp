@@ -95,7 +95,7 @@ ChildResult run_in_child(const std::function<std::string()>& fn) {
   return r;
 }
 
-ChildResult run_program(const std::vector<std::string>& argv, const std::vector<std::string>& env, bool quiet_stderr) {
+ChildResult run_program(const std::vector<std::string>& argv, const std::vector<std::string>& env) {
   std::fflush(nullptr);
   // Built before fork: the child only calls async-signal-safe functions.
   std::vector<char*> args;
@@ -118,10 +118,7 @@ ChildResult run_program(const std::vector<std::string>& argv, const std::vector<
   if (pid < 0) throw Error(std::string("fork: ") + std::strerror(errno));
   if (pid == 0) {
     ::dup2(p.fd[1], 1);
-    if (quiet_stderr) {
-      const int null = ::open("/dev/null", O_WRONLY);
-      if (null >= 0) ::dup2(null, 2);
-    }
+    ::dup2(p.fd[1], 2);
     ::execvpe(args[0], args.data(), envp.data());
     ::_exit(127);
   }

@@ -19,9 +19,8 @@ struct ChildResult {
 ChildResult run_in_child(const std::function<std::string()>& fn);
 
 // Runs a program (argv[0] is searched on PATH) with `env` ("NAME=value") added to the
-// environment, capturing its stdout; stderr passes through unless quiet. Does not throw
-// on a non-zero exit: check exit_code.
-ChildResult run_program(const std::vector<std::string>& argv, const std::vector<std::string>& env = {},
-                        bool quiet_stderr = true);
+// environment, capturing its stdout and stderr together in `output`. Does not throw on a
+// non-zero exit: check exit_code.
+ChildResult run_program(const std::vector<std::string>& argv, const std::vector<std::string>& env = {});
 
 }  // namespace tessera::bench

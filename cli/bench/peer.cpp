@@ -26,8 +26,10 @@ Peer::Peer(std::string script) : script_(std::move(script)) {
     if (const char* e = std::getenv("TESSERA_PEER")) script_ = e;
   if (script_.empty()) return;
   if (!std::filesystem::is_regular_file(script_)) throw Error("peer script '" + script_ + "' is not a file");
+  // Debian's python3-torch serves the system interpreter, which a python3 earlier on PATH
+  // (a virtual environment, pyenv) may hide.
   const char* py = std::getenv("TESSERA_PEER_PYTHON");
-  python_ = py && *py ? py : "python3";
+  python_ = py && *py ? py : std::filesystem::exists("/usr/bin/python3") ? "/usr/bin/python3" : "python3";
   const std::string blas = openblas_openmp_dir();
   if (!blas.empty()) {
     const char* old = std::getenv("LD_LIBRARY_PATH");
@@ -42,7 +44,10 @@ PeerRun Peer::run(const std::string& mode, int threads, int repeats, int warmup,
   argv.insert(argv.end(), shape.begin(), shape.end());
   const ChildResult c = run_program(argv, env_);
   const std::string what = "peer '" + script_ + "' --mode " + mode + " --threads " + std::to_string(threads);
-  if (c.exit_code != 0) throw Error(what + " failed with exit code " + std::to_string(c.exit_code));
+  if (c.exit_code != 0) {
+    const std::string tail = c.output.substr(c.output.size() > 400 ? c.output.size() - 400 : 0);
+    throw Error(what + " failed with exit code " + std::to_string(c.exit_code) + " (" + python_ + "): " + tail);
+  }
   // Its result is the last line that starts an object.
   const auto start = c.output.rfind("\n{");
   nlohmann::json j;

@@ -2,7 +2,8 @@
 // per run) as a child process and reads its timings.
 //   python -u SCRIPT --mode train|encode|decode --threads N --repeats R --warmup W
 //                    --batch B --frames T --utt-frames N   (the same shapes as tessera's)
-// The interpreter is $TESSERA_PEER_PYTHON or python3; when Debian's OpenMP build of
+// The interpreter is $TESSERA_PEER_PYTHON, else the system's /usr/bin/python3 (where
+// Debian's python3-torch lives), else python3 on PATH; when Debian's OpenMP build of
 // OpenBLAS is installed (package libopenblas0-openmp), it is put first on
 // LD_LIBRARY_PATH, as the peer's README asks (the reference BLAS is 3–6× slower).
 #pragma once
