@@ -20,6 +20,7 @@ Run register_decode(CLI::App& app);
 Run register_ladder(CLI::App& app);
 Run register_evaluate(CLI::App& app);
 Run register_report(CLI::App& app);
+Run register_bench(CLI::App& app);
 
 // Settings shared by every command that reads an experiment file.
 struct ConfigArgs {

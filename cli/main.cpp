@@ -30,6 +30,7 @@ int main(int argc, char** argv) {
   add(register_ladder);
   add(register_evaluate);
   add(register_report);
+  add(register_bench);
 
   try {
     app.parse(argc, argv);

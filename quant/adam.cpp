@@ -21,7 +21,7 @@ Adam::Adam(std::size_t n, AdamConfig cfg) : cfg_(cfg), m_(n, 0.0f), v_(n, 0.0f) 
   if (!(cfg.weight_decay >= 0)) bad("weight_decay must be >= 0, got", cfg.weight_decay);
 }
 
-void Adam::step(float* params, const float* grads, float lr) {
+void Adam::step(float* params, const float* grads, float lr, ThreadPool* pool) {
   using Arr = Eigen::Map<Eigen::ArrayXf>;
   using CArr = Eigen::Map<const Eigen::ArrayXf>;
   ++t_;
@@ -39,8 +39,9 @@ void Adam::step(float* params, const float* grads, float lr) {
 
   constexpr std::ptrdiff_t kBlock = 2048;   // 4 arrays × 8 KB: stays in L1/L2 across the passes
   const std::ptrdiff_t n = std::ptrdiff_t(m_.size());
-  for (std::ptrdiff_t i = 0; i < n; i += kBlock) {
-    const std::ptrdiff_t len = std::min(kBlock, n - i);
+  auto update = [&](std::ptrdiff_t begin, std::ptrdiff_t end) {
+  for (std::ptrdiff_t i = begin; i < end; i += kBlock) {
+    const std::ptrdiff_t len = std::min(kBlock, end - i);
     Arr p(params + i, len), m(m_.data() + i, len), v(v_.data() + i, len);
     CArr g(grads + i, len);
     if (decoupled) p *= shrink;
@@ -53,6 +54,13 @@ void Adam::step(float* params, const float* grads, float lr) {
     }
     p -= step_size * m / (v.sqrt() * inv_bc2_sqrt + eps);
   }
+  };
+  if (!pool || pool->size() == 1) return update(0, n);
+  // Lane chunks of whole blocks: no two lanes write one cache line.
+  const std::size_t blocks = std::size_t((n + kBlock - 1) / kBlock);
+  pool->parallel_for(blocks, [&](std::size_t b0, std::size_t b1) {
+    update(std::ptrdiff_t(b0) * kBlock, std::min(n, std::ptrdiff_t(b1) * kBlock));
+  });
 }
 
 void Adam::restore(std::int64_t t, std::span<const float> m, std::span<const float> v) {

@@ -15,6 +15,7 @@
 #include <vector>
 
 #include "quant/float_buffer.h"
+#include "quant/thread_pool.h"
 
 namespace tessera::quant {
 
@@ -31,7 +32,9 @@ class Adam {
   explicit Adam(std::size_t n, AdamConfig cfg = {});
 
   // One update of params[0..n) from grads[0..n); allocation-free.
-  void step(float* params, const float* grads, float lr);
+  // With a pool the parameters are split over its lanes in blocks; every element's update
+  // is the same arithmetic either way, so the result does not depend on the pool.
+  void step(float* params, const float* grads, float lr, ThreadPool* pool = nullptr);
 
   std::size_t size() const { return m_.size(); }
   std::int64_t steps() const { return t_; }   // updates done so far (t)

@@ -70,7 +70,7 @@ StepResult TrainStep::run(const Tensor& x, int depth, double lr) {
                                    : grad_norm(slab.grads(), slab.count());
   if (!std::isfinite(r.grad_norm))
     throw Error("training diverged (the gradient norm is not finite); lower train.learning_rate or check the corpus");
-  adam_.step(slab.params(), slab.grads(), float(lr));
+  adam_.step(slab.params(), slab.grads(), float(lr), &m.pool());
   if (codebook_adam_) codebook_adam_->step(rvq.codebooks().data(), rvq.codebook_grads().data(), float(lr));
   return r;
 }

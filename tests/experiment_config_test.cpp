@@ -80,3 +80,11 @@ TEST_CASE("the shipped experiment files load") {
     CHECK_NOTHROW(load_experiment(path, {}));
   }
 }
+
+TEST_CASE("configs/bench.yaml is the built-in defaults, which `tessera bench` times without --config") {
+  // The reference architecture of torch_reference.py (80 mels, 256 channels, 128-dim latent,
+  // strides 2·2, 8 × 1024 codes, batch 16 × 200, lr 3e-4) is both; if they drift apart the
+  // bench's "built-in defaults (= configs/bench.yaml)" line would lie.
+  const ExperimentConfig file = load_experiment(std::string(TESSERA_SOURCE_DIR) + "/configs/bench.yaml", {});
+  CHECK(resolved_yaml(file) == resolved_yaml(load_experiment("", {})));
+}

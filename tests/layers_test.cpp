@@ -240,13 +240,17 @@ TEST_CASE("conv1d GEMM path equals the naive reference on GEMM-sized shapes") {
 }
 
 TEST_CASE("conv_transpose1d phase GEMMs equal the naive reference on GEMM-sized shapes") {
+  // Both layouts: items (one GEMM per item, phase and tap) and interleaved (the decoder's
+  // [T][B][C] order: one GEMM per phase and tap for the whole batch, copied into place).
   std::mt19937_64 rng(12);
+  for (Layout lay : {Layout::items, Layout::interleaved})
   for (const ConvTranspose1dShape& s :
        {ConvTranspose1dShape{24, 40, 4, 2, 1, 0}, ConvTranspose1dShape{32, 20, 6, 3, 1, 2},
         ConvTranspose1dShape{20, 24, 5, 2, 2, 1}, ConvTranspose1dShape{24, 24, 3, 1, 1, 0}}) {
     CAPTURE(s.k);
     CAPTURE(s.stride);
-    const int B = 2, T = 29, To = s.out_frames(T);
+    CAPTURE(int(lay));
+    const int B = lay == Layout::items ? 2 : 3, T = 29, To = s.out_frames(T);
     const reference::ConvDims n{B, s.c_in, s.c_out, T, To, s.k, s.stride, 1, s.pad};
     ParamSlab slab;
     ConvTranspose1d conv(slab, "t", s);
@@ -257,13 +261,13 @@ TEST_CASE("conv_transpose1d phase GEMMs equal the naive reference on GEMM-sized 
     const std::vector<float> bt(slab.value(conv.b).begin(), slab.value(conv.b).end());
 
     PaddedTensor x, y, dy, dx;
-    from_torch(x, xt, B, s.c_in, T, s.margin());
-    y.reshape(B, s.c_out, To, 0);
+    from_torch(x, xt, B, s.c_in, T, s.margin(), lay);
+    y.reshape(B, s.c_out, To, 0, lay);
     conv.forward(y.view(), x.view(), slab.view());
     check_close("convT y", to_torch(y.view()), reference::conv_transpose1d_forward(n, xt, wt, bt), 1e-4, 1e-4);
 
-    from_torch(dy, dyt, B, s.c_out, To, 0);
-    dx.reshape(B, s.c_in, T, s.margin());
+    from_torch(dy, dyt, B, s.c_out, To, 0, lay);
+    dx.reshape(B, s.c_in, T, s.margin(), lay);
     dx.zero();
     const SeqView dxv = dx.view();
     conv.backward(&dxv, dy.view(), x.view(), slab.view());

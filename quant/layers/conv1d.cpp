@@ -72,6 +72,14 @@ Conv1dShape widened(Conv1dShape s, int B) {
 // at C = 256 on a 1 MB-L2 core; 400–800 frames did best, 768 = 0.75 MB of y at C = 256).
 constexpr int kFrameBlock = 768;
 
+// The block length for T output frames: T split into equal blocks of at most kFrameBlock,
+// rounded up to whole 16-float packets. Fixed blocks of 768 left short tails (1600 frames
+// → 768 + 768 + 64), and each block packs the weights again for its few columns.
+int frame_block(int T) {
+  const int blocks = std::max(1, (T + kFrameBlock - 1) / kFrameBlock);
+  return ((T + blocks - 1) / blocks + 15) / 16 * 16;
+}
+
 // y = epilogue(conv(x) + bias), item by item, block by block (the ELU runs on each
 // block while it is still in cache).
 void conv_forward(const Conv1dShape& s, const SeqView& y, const CSeqView& x, const float* wp, const float* bp,
@@ -82,17 +90,18 @@ void conv_forward(const Conv1dShape& s, const SeqView& y, const CSeqView& x, con
   // With d = 1 (or k = 1) and contiguous frames, one GEMM over the overlapping
   // k·C_in-row view of x does all taps.
   const bool one_gemm = (s.dilation == 1 || k == 1) && x.tstride == 1;
+  const int block = frame_block(y.T);
   for (int bi = 0; bi < x.B; ++bi) {
-    for (int t0 = 0; t0 < y.T; t0 += kFrameBlock) {
-      const int n = std::min(kFrameBlock, y.T - t0), u0 = t0 * s.stride - s.pad_left;
+    for (int t0 = 0; t0 < y.T; t0 += block) {
+      const int n = std::min(block, y.T - t0), u0 = t0 * s.stride - s.pad_left;
       MapMat Y = frames(y, bi, t0, co, n);
       if (!accumulate) Y.colwise() = bias;
       if (one_gemm) {
         const CMapRowMat W(wp, co, long(k) * ci, Stride(long(k) * ci));
-        Y.noalias() += W * frames(x, bi, u0, long(k) * ci, n, s.stride);
+        add_product(Y, W, frames(x, bi, u0, long(k) * ci, n, s.stride));
       } else {
         for (int j = 0; j < k; ++j)
-          Y.noalias() += tap(wp, co, k, ci, j) * frames(x, bi, u0 + j * s.dilation, ci, n, s.stride);
+          add_product(Y, tap(wp, co, k, ci, j), frames(x, bi, u0 + j * s.dilation, ci, n, s.stride));
       }
       if (accumulate) Y.colwise() += bias;
       if (e == Epilogue::elu) {
@@ -110,9 +119,10 @@ void conv_backward(const Conv1dShape& s, const SeqView* dx, const CSeqView& dy, 
   const int k = s.k, ci = s.c_in, co = s.c_out;
   Eigen::Map<Eigen::VectorXf> db(dbp, co);
   const bool one_gemm = (s.dilation == 1 || k == 1) && x.tstride == 1;
+  const int block = frame_block(dy.T);
   for (int bi = 0; bi < x.B; ++bi) {
-    for (int t0 = 0; t0 < dy.T; t0 += kFrameBlock) {
-      const int n = std::min(kFrameBlock, dy.T - t0), u0 = t0 * s.stride - s.pad_left;
+    for (int t0 = 0; t0 < dy.T; t0 += block) {
+      const int n = std::min(block, dy.T - t0), u0 = t0 * s.stride - s.pad_left;
       const CMapMat dY = frames(dy, bi, t0, co, n);
       add_column_sum(db, dY);
       if (one_gemm) {

@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cassert>
+#include <vector>
 
 #include "audio/error.h"
 #include "quant/layers/gemm.h"
@@ -31,6 +32,22 @@ void for_each_tap(const ConvTranspose1dShape& s, int t_out, F&& f) {
     }
   }
 }
+
+// Phase r's output frames of an interleaved batch ([T][B][C]) are runs of B·C floats, s·B
+// frames apart: no single GEMM operand. Its input frames m + q of all items, though, are one
+// contiguous block of n·B frames. So the phase's product for the whole batch goes to a
+// contiguous C_out × n·B buffer (one GEMM per tap with n·B columns, weights packed once
+// instead of once per item) that is then copied run by run into place; backward gathers
+// the phase's output gradient the same way. Per thread, it grows once to the largest phase.
+thread_local std::vector<float> phase_buffer;
+
+MapMat phase_matrix(int rows, long cols) {
+  const std::size_t size = std::size_t(rows) * std::size_t(cols);
+  if (phase_buffer.size() < size) phase_buffer.resize(size);
+  return {phase_buffer.data(), rows, cols, Stride(rows)};
+}
+
+bool collapsible(const CSeqView& x, const CSeqView& y) { return x.interleaved() && y.interleaved() && x.B == y.B; }
 
 }  // namespace
 
@@ -65,11 +82,25 @@ void ConvTranspose1d::forward(const SeqView& y, const CSeqView& x, const ParamVi
   const int k = s.k, ci = s.c_in, co = s.c_out, st = s.stride;
   const float* wp = p.p(w);
   const Eigen::Map<const Eigen::VectorXf> bias(p.p(b), co);
+  if (collapsible(x, y)) {
+    const int B = x.B;
+    const long run = long(B) * co;
+    for (int r = 0; r < st && r < y.T; ++r) {
+      const int n = (y.T - r + st - 1) / st;
+      MapMat P = phase_matrix(co, long(n) * B);
+      P.colwise() = bias;
+      for_each_tap(s, y.T, [&](int rr, int j, int q, int nn) {
+        if (rr == r) add_product(P, tap(wp, co, k, ci, j), CMapMat(x.frame(0, q), ci, long(nn) * B, Stride(ci)));
+      });
+      for (int m = 0; m < n; ++m) std::copy_n(P.data() + m * run, run, y.frame(0, st * m + r));
+    }
+    return;
+  }
   for (int bi = 0; bi < x.B; ++bi) {
     frames(y, bi, 0, co, y.T).colwise() = bias;
     for_each_tap(s, y.T, [&](int r, int j, int q, int n) {
       MapMat Y = frames(y, bi, r, co, n, st);
-      Y.noalias() += tap(wp, co, k, ci, j) * frames(x, bi, q, ci, n);
+      add_product(Y, tap(wp, co, k, ci, j), frames(x, bi, q, ci, n));
     });
   }
 }
@@ -82,6 +113,27 @@ void ConvTranspose1d::backward(const SeqView* dx, const CSeqView& dy, const CSeq
   const float* wp = p.p(w);
   float* dwp = p.g(w);
   Eigen::Map<Eigen::VectorXf> db(p.g(b), co);
+  if (collapsible(x, dy) && (!dx || dx->interleaved())) {
+    const int B = x.B;
+    const long run = long(B) * co;
+    add_column_sum(db, CMapMat(dy.frame(0, 0), co, long(dy.T) * B, Stride(co)));
+    for (int r = 0; r < st && r < dy.T; ++r) {
+      const int n = (dy.T - r + st - 1) / st;
+      MapMat G = phase_matrix(co, long(n) * B);
+      for (int m = 0; m < n; ++m) std::copy_n(dy.frame(0, st * m + r), run, G.data() + m * run);
+      for_each_tap(s, dy.T, [&](int rr, int j, int q, int nn) {
+        if (rr != r) return;
+        const CMapMat X(x.frame(0, q), ci, long(nn) * B, Stride(ci));
+        MapRowMat dWj = tap(dwp, co, k, ci, j);
+        dWj.noalias() += G * X.transpose();
+        if (dx) {
+          MapMat dX(dx->frame(0, q), ci, long(nn) * B, Stride(ci));
+          dX.noalias() += tap(wp, co, k, ci, j).transpose() * G;
+        }
+      });
+    }
+    return;
+  }
   for (int bi = 0; bi < x.B; ++bi) {
     add_column_sum(db, frames(dy, bi, 0, co, dy.T));
     for_each_tap(s, dy.T, [&](int r, int j, int q, int n) {

@@ -21,59 +21,11 @@
 #include "audio/mel_inverse.h"
 #include "audio/signal_metrics.h"
 #include "audio/stft.h"
+#include "cli/bench/speech_like.h"
 
 using namespace tessera::audio;
 
 namespace {
-
-// Syllables of voiced sound (glottal pulses through three formant resonators, 4 per second,
-// formants and pitch moving), with fricative noise bursts and pauses.
-std::vector<float> speech_like(int sr, double seconds, unsigned seed) {
-  const std::size_t n = std::size_t(sr * seconds);
-  std::vector<float> x(n, 0.0f);
-  std::mt19937 rng(seed);
-  std::uniform_real_distribution<double> u(0.0, 1.0);
-  std::normal_distribution<double> g(0.0, 1.0);
-  const double formants[][3] = {{730, 1090, 2440}, {270, 2290, 3010}, {530, 1840, 2480},
-                                {570, 840, 2410},  {300, 870, 2240},  {660, 1720, 2410}};
-  double y1[3] = {0, 0, 0}, y2[3] = {0, 0, 0}, phase = 0.0;
-  const std::size_t syl = std::size_t(sr / 4);
-  int vowel = 0, next = 1;
-  bool fricative = false, pause = false;
-  for (std::size_t i = 0; i < n; ++i) {
-    if (i % syl == 0) {
-      vowel = next;
-      next = int(u(rng) * 6);
-      fricative = u(rng) < 0.3;
-      pause = u(rng) < 0.1;
-    }
-    const double pos = double(i % syl) / double(syl), t = double(i) / sr;
-    const double env = pause ? 0.0 : std::sin(std::numbers::pi * pos);
-    const double f0 = 120.0 + 30.0 * std::sin(2.0 * std::numbers::pi * 0.7 * t) + 15.0 * pos;
-    phase += f0 / sr;
-    double src = 0.0;
-    if (phase >= 1.0) {
-      phase -= 1.0;
-      src = 1.0;  // glottal pulse
-    }
-    double v = 0.0;
-    for (int k = 0; k < 3; ++k) {  // two-pole resonators, formants gliding to the next vowel
-      const double f = formants[vowel][k] + pos * (formants[next][k] - formants[vowel][k]);
-      const double bw = 60.0 + 40.0 * k, r = std::exp(-std::numbers::pi * bw / sr);
-      const double y = src + 2.0 * r * std::cos(2.0 * std::numbers::pi * f / sr) * y1[k] - r * r * y2[k];
-      y2[k] = y1[k];
-      y1[k] = y;
-      v += y / (k + 1);
-    }
-    double s = 0.02 * v * env;
-    if (fricative && pos > 0.75) s += 0.05 * g(rng) * std::sin(std::numbers::pi * (pos - 0.75) * 4.0);
-    x[i] = float(s + 1e-4 * g(rng));
-  }
-  float peak = 0.0f;
-  for (float v : x) peak = std::max(peak, std::abs(v));
-  for (float& v : x) v *= 0.5f / peak;
-  return x;
-}
 
 struct Timing {
   double wall = 1e300, cpu = 1e300;  // seconds, best of the repetitions
@@ -121,7 +73,7 @@ void quality_table(const char* title, const std::vector<float>& x, const AudioCo
 int main(int argc, char** argv) {
   const AudioConfig cfg;  // 16 kHz, n_fft 1024, hop 160, 80 Slaney mels, 64 iterations
   const double seconds = 10.0;
-  const std::vector<float> x = speech_like(cfg.sample_rate, seconds, 1);
+  const std::vector<float> x = tessera::bench::speech_like(cfg.sample_rate, seconds, 1);
   const std::size_t L = x.size();
   const int reps = 3;
 

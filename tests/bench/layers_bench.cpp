@@ -21,55 +21,17 @@
 #include <string>
 #include <vector>
 
+#include "cli/bench/measure.h"
 #include "quant/decoder.h"
 #include "quant/encoder.h"
 
 using namespace tessera::quant;
+using namespace tessera::bench;
 
 namespace {
 
 constexpr double kEncMacsPerFrame = 1544192, kDecMacsPerFrame = 1576960, kEncInMacsPerFrame = 143360;
 constexpr double kTrainMacsPerFrame = 3 * (kEncMacsPerFrame + kDecMacsPerFrame) - kEncInMacsPerFrame;
-
-double now_ms() {
-  return std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now().time_since_epoch()).count();
-}
-
-double cpu_ms() {
-  timespec ts;
-  clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
-  return ts.tv_sec * 1e3 + ts.tv_nsec / 1e6;
-}
-
-// Busy CPU time of the whole machine in ms, from /proc/stat (Linux; −1 elsewhere).
-double machine_busy_ms() {
-  std::FILE* f = std::fopen("/proc/stat", "r");
-  if (!f) return -1;
-  unsigned long long v[8] = {};
-  const int n = std::fscanf(f, "cpu %llu %llu %llu %llu %llu %llu %llu %llu", &v[0], &v[1], &v[2], &v[3], &v[4],
-                            &v[5], &v[6], &v[7]);
-  std::fclose(f);
-  if (n != 8) return -1;
-  const unsigned long long busy = v[0] + v[1] + v[2] + v[5] + v[6] + v[7];  // all but idle, iowait
-  return double(busy) * 1e3 / double(sysconf(_SC_CLK_TCK));
-}
-
-// Share of the machine's CPU time used by other processes over a timed section, as
-// torch_reference.py's other_process_cpu_fraction: 0 idle, 0.5 = one of two cores busy.
-struct OtherLoad {
-  double busy0 = machine_busy_ms(), cpu0 = cpu_ms(), wall0 = now_ms();
-  double fraction() const {
-    const double busy = machine_busy_ms() - busy0, mine = cpu_ms() - cpu0, wall = now_ms() - wall0;
-    if (busy0 < 0 || wall <= 0) return -1;
-    return std::max(0.0, busy - mine) / (wall * double(sysconf(_SC_NPROCESSORS_ONLN)));
-  }
-};
-
-double median(std::vector<double> v) {
-  std::sort(v.begin(), v.end());
-  const std::size_t n = v.size();
-  return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
-}
 
 struct Args {
   std::vector<int> threads = {1, 2};
@@ -89,12 +51,7 @@ Args parse(int argc, char** argv) {
       return argv[++i];
     };
     if (k == "--threads") {
-      a.threads.clear();
-      for (const char* p = next(); *p;) {
-        a.threads.push_back(std::atoi(p));
-        while (*p && *p != ',') ++p;
-        if (*p == ',') ++p;
-      }
+      a.threads = parse_thread_list(next());
     } else if (k == "--repeats") a.repeats = std::atoi(next());
     else if (k == "--warmup") a.warmup = std::atoi(next());
     else if (k == "--batch") a.batch = std::atoi(next());
@@ -137,7 +94,7 @@ int main(int argc, char** argv) {
     std::vector<double> t_zero, t_ef, t_df, t_db, t_eb, t_tot, t_cpu;
     OtherLoad load;
     for (int rep = 0; rep < a.warmup + a.repeats; ++rep) {
-      const double c0 = cpu_ms();
+      const double c0 = process_cpu_ms();
       const double t0 = now_ms();
       slab.zero_grad();
       const double t1 = now_ms();
@@ -154,22 +111,22 @@ int main(int argc, char** argv) {
       const double t5 = now_ms();
       enc.backward(dz, slab);  // straight-through: dL/dz = dL/dzq
       const double t6 = now_ms();
-      const double c1 = cpu_ms();
+      const double c1 = process_cpu_ms();
       if (rep < a.warmup) continue;
       t_cpu.push_back(c1 - c0);
       t_zero.push_back(t1 - t0), t_ef.push_back(t2 - t1), t_df.push_back(t3 - t2);
       t_db.push_back(t5 - t4), t_eb.push_back(t6 - t5), t_tot.push_back(t6 - t0);
     }
     const double other = load.fraction();
-    const double med = median(t_tot);
+    const double med = median_of(t_tot);
     const double gflop = 2 * kTrainMacsPerFrame * a.batch * a.frames / 1e9;
     std::printf("threads %d: %.1f ms per step (median of %d; min %.1f, max %.1f), %.1f GFLOP/s; "
                 "CPU %.1f ms per step (%.1f GFLOP per CPU-s); other processes' load %.2f\n",
                 threads, med, a.repeats, *std::min_element(t_tot.begin(), t_tot.end()),
-                *std::max_element(t_tot.begin(), t_tot.end()), gflop / (med / 1e3), median(t_cpu),
-                gflop / (median(t_cpu) / 1e3), other);
-    std::printf("  zero_grad %.1f | enc fwd %.1f | dec fwd %.1f | dec bwd %.1f | enc bwd %.1f ms\n", median(t_zero),
-                median(t_ef), median(t_df), median(t_db), median(t_eb));
+                *std::max_element(t_tot.begin(), t_tot.end()), gflop / (med / 1e3), median_of(t_cpu),
+                gflop / (median_of(t_cpu) / 1e3), other);
+    std::printf("  zero_grad %.1f | enc fwd %.1f | dec fwd %.1f | dec bwd %.1f | enc bwd %.1f ms\n", median_of(t_zero),
+                median_of(t_ef), median_of(t_df), median_of(t_db), median_of(t_eb));
 
     if (!a.infer) continue;
     Tensor xu(1, cfg.n_mels, a.utt_frames), zu, yu;
@@ -186,9 +143,9 @@ int main(int argc, char** argv) {
     const double audio_s = a.utt_frames * 0.01;
     std::printf("  inference, one %d-frame item: encoder %.1f ms (%.0fx real time, %.1f GFLOP/s), "
                 "decoder %.1f ms (%.0fx, %.1f GFLOP/s)\n",
-                a.utt_frames, median(t_enc), audio_s / (median(t_enc) / 1e3),
-                2 * kEncMacsPerFrame * a.utt_frames / 1e9 / (median(t_enc) / 1e3), median(t_dec),
-                audio_s / (median(t_dec) / 1e3), 2 * kDecMacsPerFrame * a.utt_frames / 1e9 / (median(t_dec) / 1e3));
+                a.utt_frames, median_of(t_enc), audio_s / (median_of(t_enc) / 1e3),
+                2 * kEncMacsPerFrame * a.utt_frames / 1e9 / (median_of(t_enc) / 1e3), median_of(t_dec),
+                audio_s / (median_of(t_dec) / 1e3), 2 * kDecMacsPerFrame * a.utt_frames / 1e9 / (median_of(t_dec) / 1e3));
   }
   return 0;
 }
