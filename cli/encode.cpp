@@ -147,9 +147,8 @@ int run_encode(const EncodeArgs& a) {
           return;
         }
         try {
-          const audio::Audio au = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm);
-          r.duration = au.duration();
-          r.codes = models[std::size_t(w)]->encode(au.samples, depth);
+          // Streamed: memory does not grow with the file (tokenizer.h: encode_file).
+          r.codes = models[std::size_t(w)]->encode_file(f.path, depth, norm, &r.duration);
         } catch (const Error& e) {
           r.error = naming_file(f.path, e.what());
           return;

@@ -19,6 +19,8 @@
 
 #include <Eigen/Core>
 
+#include "quant/chunked_decoder.h"
+#include "quant/chunked_encoder.h"
 #include "quant/codebook/residual_codebooks.h"
 #include "quant/corpus.h"
 #include "quant/decoder.h"
@@ -60,6 +62,14 @@ class Tokenizer {
   // Mono samples at sample_rate() → codes L x depth (depth 0 = all stages). Throws
   // tessera::Error when the audio is shorter than one code frame or depth is out of range.
   Eigen::MatrixXi encode(const std::vector<float>& samples, int depth = 0);
+  // An audio file → codes L x depth (depth 0 = all stages), streamed block by block:
+  // memory does not grow with the file's length (audio_stream.h, log_mel_stream.h,
+  // chunked_encoder.h), and the codes equal
+  // encode(audio::load_audio_as(path, sample_rate(), normalize_dbfs).samples, depth) bit for
+  // bit. Only the codes are kept (L·depth ints: 1 h at depth 8 is 2.9 MB). `duration`
+  // receives the length in seconds. Throws tessera::Error for a bad or too-short file.
+  Eigen::MatrixXi encode_file(const std::string& path, int depth = 0, const double* normalize_dbfs = nullptr,
+                              double* duration = nullptr);
   // Mono samples → the model's natural-log log-mel M x T (the features it encodes).
   Eigen::MatrixXf log_mel(const std::vector<float>& samples) const;
   // Log-mel M x T → samples at sample_rate() by the model's mel inversion and Griffin-Lim
@@ -82,7 +92,6 @@ class Tokenizer {
   Decoder dec_;
   ResidualCodebooks rvq_;
   BandStats stats_;
-  Tensor x_, z_, zq_, y_;  // inference scratch
 };
 
 // Threads for a `threads` setting: 0 means every hardware thread.
