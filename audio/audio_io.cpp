@@ -1,4 +1,4 @@
-// audio_io.cpp — libsndfile reading/writing, downmix, peak limiting.
+// audio_io.cpp — whole-file load and save (over AudioStream and WavWriter), peak normalisation.
 #include "audio/audio_io.h"
 
 #include <algorithm>
@@ -9,21 +9,11 @@
 #include <sstream>
 #include <unistd.h>
 
-#include <sndfile.h>
-
-#include "audio/atomic_file.h"
 #include "audio/audio_stream.h"
+#include "audio/wav_writer.h"
 #include "audio/error.h"
 
 namespace tessera::audio {
-namespace {
-
-struct SndfileCloser {
-  void operator()(SNDFILE* f) const { sf_close(f); }
-};
-using SndfileHandle = std::unique_ptr<SNDFILE, SndfileCloser>;
-
-}  // namespace
 
 // Both read through AudioStream, so whole-file and streamed samples agree bit for bit.
 static Audio read_all(AudioStream& in, SourceInfo* info) {
@@ -64,51 +54,9 @@ void normalize_peak(std::vector<float>& samples, double dbfs) {
 
 SaveReport save_wav(const std::string& path, const std::vector<float>& samples, int sample_rate,
                     SampleFormat format, double peak_dbfs) {
-  if (sample_rate <= 0) throw Error("cannot write '" + path + "': sample rate must be positive");
-  SaveReport rep;
-  for (float s : samples) {
-    if (!std::isfinite(s)) throw Error("cannot write '" + path + "': the signal holds NaN or Inf");
-    const float a = std::fabs(s);
-    rep.input_peak = std::max(rep.input_peak, a);
-    if (a > 1.0f) ++rep.clipped;
-  }
-  const double limit = std::pow(10.0, std::min(peak_dbfs, 0.0) / 20.0);
-  double gain = 1.0;
-  if (rep.input_peak > limit) {
-    gain = limit / rep.input_peak;
-    rep.limited = true;
-    rep.gain_db = 20.0 * std::log10(gain);
-  }
-  // Scaling to int16 is done here, rounding to nearest (libsndfile's own float path
-  // truncates when clipping is enabled, which costs 6 dB of SNR).
-  std::vector<float> scaled;
-  std::vector<short> pcm;
-  if (format == SampleFormat::pcm16) {
-    pcm.resize(samples.size());
-    for (std::size_t i = 0; i < samples.size(); ++i)
-      pcm[i] = short(std::clamp(std::lround(double(samples[i]) * gain * 32767.0), -32768L, 32767L));
-  } else {
-    scaled.resize(samples.size());
-    for (std::size_t i = 0; i < samples.size(); ++i) scaled[i] = float(samples[i] * gain);
-  }
-
-  // libsndfile writes through the temporary file's descriptor; commit() renames it into place.
-  AtomicFile out(path);
-  SF_INFO sfinfo{};
-  sfinfo.samplerate = sample_rate;
-  sfinfo.channels = 1;
-  sfinfo.format = SF_FORMAT_WAV | (format == SampleFormat::pcm16 ? SF_FORMAT_PCM_16 : SF_FORMAT_FLOAT);
-  {
-    SndfileHandle f(sf_open_fd(out.fd(), SFM_WRITE, &sfinfo, /*close_desc=*/SF_FALSE));
-    if (!f) throw Error("cannot write '" + path + "': " + sf_strerror(nullptr));
-    const sf_count_t n = sf_count_t(samples.size());
-    const sf_count_t wrote = format == SampleFormat::pcm16 ? sf_writef_short(f.get(), pcm.data(), n)
-                                                           : sf_writef_float(f.get(), scaled.data(), n);
-    if (wrote != n) throw Error("cannot write '" + path + "': " + sf_strerror(f.get()));
-    sf_write_sync(f.get());
-  }
-  out.commit();
-  return rep;
+  WavWriter w(path, sample_rate, format, peak_dbfs);
+  w.write(samples.data(), samples.size());
+  return w.commit();
 }
 
 }  // namespace tessera::audio

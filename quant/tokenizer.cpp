@@ -6,7 +6,7 @@
 
 #include "audio/error.h"
 #include "audio/log_mel.h"
-#include "audio/mel_inverse.h"
+#include "audio/chunked_synthesis.h"
 #include "quant/checkpoint.h"
 
 namespace tessera::quant {
@@ -47,7 +47,11 @@ Eigen::MatrixXi Tokenizer::encode(const std::vector<float>& samples, int depth) 
 std::vector<float> Tokenizer::synthesize(const Eigen::MatrixXf& log_mel, int iters) const {
   audio::AudioConfig acfg = cfg_.audio;
   if (iters >= 0) acfg.griffin_lim_iters = iters;
-  return audio::invert_log_mel(acfg, log_mel, 0);
+  std::vector<float> out;
+  audio::ChunkedSynthesis syn(acfg, [&](const float* x, std::size_t n) { out.insert(out.end(), x, x + n); });
+  syn.push(log_mel);
+  syn.finish();
+  return out;
 }
 
 Eigen::MatrixXi Tokenizer::encode(const Eigen::MatrixXf& log_mel, int depth) {

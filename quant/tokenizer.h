@@ -9,6 +9,13 @@
 //                                                           // tok->sample_rate(); L x S codes
 //   Eigen::MatrixXf mel = tok->decode(codes, /*depth=*/2);  // log-mel from the first 2 stages
 //   std::vector<float> audio = tok->synthesize(mel);         // Griffin-Lim, model's settings
+//   Eigen::MatrixXi long_codes = tok->encode_file("talk.flac"); // streamed, bounded memory
+//
+// Long inputs in bounded memory, piece by piece: audio::AudioStream (audio_stream.h) →
+// audio::LogMelStream (log_mel_stream.h) → ChunkedEncoder (chunked_encoder.h) → codes, and
+// ChunkedDecoder (chunked_decoder.h) → audio::ChunkedSynthesis (chunked_synthesis.h) →
+// audio::WavWriter (wav_writer.h). encode/decode below run through the same chunked
+// classes, so streamed and in-memory results are identical.
 //
 // tessera::audio::load_audio_as(path, tok->sample_rate(), nullptr) reads and resamples a
 // file. A Tokenizer is not thread-safe (it keeps scratch buffers); use one per thread, or
@@ -73,7 +80,8 @@ class Tokenizer {
   // Mono samples → the model's natural-log log-mel M x T (the features it encodes).
   Eigen::MatrixXf log_mel(const std::vector<float>& samples) const;
   // Log-mel M x T → samples at sample_rate() by the model's mel inversion and Griffin-Lim
-  // (`iters` < 0: the model's audio.griffin_lim_iters). Not peak-limited: audio::save_wav is.
+  // (`iters` < 0: the model's audio.griffin_lim_iters), in overlapping 20 s chunks past
+  // 20 s (chunked_synthesis.h). Not peak-limited: audio::save_wav is.
   std::vector<float> synthesize(const Eigen::MatrixXf& log_mel, int iters = -1) const;
 
   // Natural-log log-mel M x T (unnormalised) → codes L x depth, L = T / hop (frames past
