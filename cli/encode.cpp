@@ -11,10 +11,8 @@
 #include <set>
 
 #include "audio/atomic_file.h"
-#include "audio/audio_io.h"
 #include "audio/error.h"
 #include "audio/file_list.h"
-#include "audio/log_mel.h"
 #include "cli/command.h"
 #include "cli/file_workers.h"
 #include "cli/progress.h"

@@ -123,7 +123,7 @@ TEST_CASE("3-minute file: streamed encode equals whole-file encode bit for bit, 
   double duration = 0;
   const Eigen::MatrixXi streamed = tok->encode_file(path, 0, nullptr, &duration);
   CHECK(duration == doctest::Approx(180.0));
-  REQUIRE(whole.rows() == 4500);  // 25 code frames/s; 4500 is no multiple of the 512-frame chunk
+  REQUIRE(whole.rows() == 4500);  // 25 code frames/s; 4500 is no multiple of the default chunk
   CHECK(streamed == whole);
   // The codes move: many distinct first-stage codes, so equality is not trivially met.
   std::vector<int> seen(16, 0);
@@ -145,9 +145,9 @@ TEST_CASE("3-minute file: streamed encode equals whole-file encode bit for bit, 
 
 TEST_CASE("files of one chunk, one frame past it, and shorter: streamed equals whole") {
   TempDir tmp;
-  const auto x = testing::synthetic_speech(30.0, 16000, 4);
-  auto tok = tiny_model(x, 1);
   const int N = ChunkedEncoder::kDefaultChunk;
+  const auto x = testing::synthetic_speech((2 * N + 4) * 0.04, 16000, 4);  // 25 code frames/s
+  auto tok = tiny_model(x, 1);
   for (int frames : {1, 2, N - 1, N, N + 1, 2 * N + 3}) {
     CAPTURE(frames);
     // L samples give 1 + L / 160 feature frames (stft.h) and a quarter of that in code frames.
@@ -206,7 +206,7 @@ TEST_CASE("the chunked encoder and decoder compute the unchunked function (conte
   REQUIRE(dec.cols() == ref.cols());
   CHECK(max_abs(dec - ref) <= 1e-5f + 1e-5f * max_abs(ref));
   // Streamed in blocks of 7 code frames with 3-frame chunks: identical to one push.
-  for (int chunk : {3, 512}) {
+  for (int chunk : {3, ChunkedDecoder::kDefaultChunk}) {
     Eigen::MatrixXf one_push(80, 0), blocks(80, 0);
     auto into = [](Eigen::MatrixXf& m) {
       return [&m](const Eigen::Ref<const Eigen::MatrixXf>& f) {

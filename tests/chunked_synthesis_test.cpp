@@ -71,7 +71,7 @@ TEST_CASE("WavWriter: blocks written one by one get the whole signal's peak limi
   CHECK(rep.clipped == 1000);
   const std::vector<float> y = load_audio(path).samples;
   REQUIRE(y.size() == 2000);
-  const double limit = std::pow(10.0, -6.0 / 20.0);  // −6 dBFS
+  const double limit = std::pow(10.0, -6.0 / 20.0);  // −6 dBFS as an amplitude, 10^(dB/20) (common practice)
   CHECK(y[1500] == doctest::Approx(limit).epsilon(1e-6));
   CHECK(y[10] == doctest::Approx(limit / 8).epsilon(1e-6));  // one gain for both blocks
   std::filesystem::remove_all(dir);
