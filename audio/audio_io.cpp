@@ -1,8 +1,7 @@
-// audio_io.cpp — libsndfile reading/writing, downmix, peak limiting.
+// audio_io.cpp — whole-file load and save (over AudioStream and WavWriter), peak normalisation.
 #include "audio/audio_io.h"
 
 #include <algorithm>
-#include <cerrno>
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
@@ -10,135 +9,39 @@
 #include <sstream>
 #include <unistd.h>
 
-#include <sndfile.h>
-
-#include "audio/atomic_file.h"
+#include "audio/audio_stream.h"
+#include "audio/wav_writer.h"
 #include "audio/error.h"
-#include "audio/resample.h"
 
 namespace tessera::audio {
-namespace {
 
-struct SndfileCloser {
-  void operator()(SNDFILE* f) const { sf_close(f); }
-};
-using SndfileHandle = std::unique_ptr<SNDFILE, SndfileCloser>;
-
-std::string describe_format(int format) {
-  SF_FORMAT_INFO info{};
-  info.format = format & SF_FORMAT_TYPEMASK;
-  std::string major = sf_command(nullptr, SFC_GET_FORMAT_INFO, &info, sizeof info) == 0 && info.name
-                          ? info.name : "unknown container";
-  SF_FORMAT_INFO sub{};
-  sub.format = format & SF_FORMAT_SUBMASK;
-  std::string minor = sf_command(nullptr, SFC_GET_FORMAT_INFO, &sub, sizeof sub) == 0 && sub.name
-                          ? sub.name : "unknown encoding";
-  return major + ", " + minor;
-}
-
-std::string sndfile_message(SNDFILE* f) { return house_style(sf_strerror(f)); }
-
-// Level facts for the callers' warnings. A run of 3 or more consecutive samples at full
-// scale is the usual sign of clipping (common practice in clip detectors).
-void measure_level(const std::vector<float>& x, SourceInfo& info) {
-  constexpr float kFull = 32766.0f / 32768.0f;   // within one 16-bit step of full scale
-  info.peak = 0;
-  info.clipped_samples = 0;
-  std::size_t run = 0;
-  for (std::size_t i = 0; i <= x.size(); ++i) {
-    const float a = i < x.size() ? std::fabs(x[i]) : 0.0f;
-    info.peak = std::max(info.peak, a);
-    if (a >= kFull) { ++run; continue; }
-    if (run >= 3) info.clipped_samples += (long long)run;
-    run = 0;
+// Both read through AudioStream, so whole-file and streamed samples agree bit for bit.
+static Audio read_all(AudioStream& in, SourceInfo* info) {
+  Audio out;
+  out.sample_rate = in.sample_rate();
+  out.samples.resize(std::size_t(in.length()));
+  std::size_t n = 0;
+  while (n < out.samples.size()) {
+    const std::size_t got = in.read(out.samples.data() + n, out.samples.size() - n);
+    if (got == 0) break;
+    n += got;
   }
+  float probe;
+  if (n == out.samples.size()) in.read(&probe, 1);  // reaches the end: the truncation checks run
+  out.samples.resize(n);
+  if (info) *info = in.source();   // after the reads: peak and clipping cover the whole file
+  return out;
 }
-
-constexpr int kMaxChannels = 256;
-constexpr int kMinRate = 1000, kMaxRate = 768000;
-
-}  // namespace
 
 Audio load_audio(const std::string& path, SourceInfo* info) {
-  std::error_code ec;
-  if (!std::filesystem::exists(path, ec))
-    throw Error("cannot open audio file '" + path + "': no such file");
-  if (std::filesystem::is_directory(path, ec))
-    throw Error("cannot open audio file '" + path + "': it is a folder");
-  if (std::filesystem::is_regular_file(path, ec) && std::filesystem::file_size(path, ec) == 0 && !ec)
-    throw Error("audio file '" + path + "' is empty (0 bytes)");
-  SF_INFO sfinfo{};
-  SndfileHandle f(sf_open(path.c_str(), SFM_READ, &sfinfo));
-  if (!f) throw Error("cannot open audio file '" + path + "': " + sndfile_message(nullptr));
-  if (sfinfo.channels <= 0 || sfinfo.channels > kMaxChannels)
-    throw Error("audio file '" + path + "' has " + std::to_string(sfinfo.channels) +
-                " channels; expected 1 to " + std::to_string(kMaxChannels));
-  if (sfinfo.samplerate < kMinRate || sfinfo.samplerate > kMaxRate)
-    throw Error("audio file '" + path + "' has a sample rate of " + std::to_string(sfinfo.samplerate) +
-                " Hz; expected " + std::to_string(kMinRate) + " to " + std::to_string(kMaxRate) + " Hz");
-  if (sfinfo.frames <= 0) throw Error("audio file '" + path + "' holds no samples");
-  // Guard against headers that claim more data than the file could hold.
-  const auto file_bytes = std::filesystem::file_size(path, ec);
-  const bool compressed = (sfinfo.format & SF_FORMAT_TYPEMASK) == SF_FORMAT_FLAC ||
-                          (sfinfo.format & SF_FORMAT_TYPEMASK) == SF_FORMAT_OGG;
-  if (!compressed && !ec && double(sfinfo.frames) * sfinfo.channels > 8.0 * double(file_bytes) + 1e6)
-    throw Error("audio file '" + path + "' claims more samples than it holds (damaged header?)");
-
-  // libsndfile shortens the data chunk of a cut file to what is there and notes it in its
-  // log ("data : 32000 (should be 200)"); a cut file is refused rather than half-read.
-  {
-    std::vector<char> log(8192, '\0');
-    sf_command(f.get(), SFC_GET_LOG_INFO, log.data(), int(log.size()) - 1);
-    std::istringstream lines(std::string(log.data()));
-    for (std::string line; std::getline(lines, line);)
-      if ((line.rfind("data", 0) == 0 || line.rfind("SSND", 0) == 0) && line.find("(should be") != std::string::npos)
-        throw Error("audio file '" + path + "' is truncated: its header promises more data than the file holds");
-  }
-  if (info) {
-    info->channels = sfinfo.channels;
-    info->sample_rate = sfinfo.samplerate;
-    info->frames = sfinfo.frames;
-    info->format = describe_format(sfinfo.format);
-  }
-  sf_command(f.get(), SFC_SET_NORM_FLOAT, nullptr, SF_TRUE);
-  Audio out;
-  out.sample_rate = sfinfo.samplerate;
-  const int ch = sfinfo.channels;
-  constexpr sf_count_t kChunk = 65536;
-  std::vector<float> buf(std::size_t(kChunk) * ch);
-  out.samples.reserve(std::size_t(std::min<sf_count_t>(sfinfo.frames, sf_count_t(1) << 31)));
-  for (;;) {
-    const sf_count_t got = sf_readf_float(f.get(), buf.data(), kChunk);
-    if (got <= 0) break;
-    for (sf_count_t i = 0; i < got; ++i) {
-      float sum = 0;
-      for (int c = 0; c < ch; ++c) sum += buf[std::size_t(i) * ch + c];
-      out.samples.push_back(sum / float(ch));
-    }
-  }
-  if (sf_error(f.get()) != SF_ERR_NO_ERROR)
-    throw Error("cannot read audio file '" + path + "': " + sndfile_message(f.get()));
-  if (out.samples.empty()) throw Error("audio file '" + path + "' holds no samples (truncated?)");
-  if (sf_count_t(out.samples.size()) < sfinfo.frames)
-    throw Error("audio file '" + path + "' is truncated: its header promises " + std::to_string(sfinfo.frames) +
-                " frames, the file holds " + std::to_string(out.samples.size()));
-  for (std::size_t i = 0; i < out.samples.size(); ++i)
-    if (!std::isfinite(out.samples[i]))
-      throw Error("audio file '" + path + "' holds a non-finite sample (NaN or Inf) at " +
-                  std::to_string(double(i) / out.sample_rate) + " s");
-  if (info) measure_level(out.samples, *info);
-  return out;
+  AudioStream in(path);
+  return read_all(in, info);
 }
 
 Audio load_audio_as(const std::string& path, int sample_rate, const double* normalize_dbfs,
                     SourceInfo* info) {
-  Audio a = load_audio(path, info);
-  if (a.sample_rate != sample_rate) {
-    a.samples = resample(a.samples, a.sample_rate, sample_rate);
-    a.sample_rate = sample_rate;
-  }
-  if (normalize_dbfs) normalize_peak(a.samples, *normalize_dbfs);
-  return a;
+  AudioStream in(path, sample_rate, normalize_dbfs);
+  return read_all(in, info);
 }
 
 void normalize_peak(std::vector<float>& samples, double dbfs) {
@@ -151,54 +54,9 @@ void normalize_peak(std::vector<float>& samples, double dbfs) {
 
 SaveReport save_wav(const std::string& path, const std::vector<float>& samples, int sample_rate,
                     SampleFormat format, double peak_dbfs) {
-  if (sample_rate <= 0) throw Error("cannot write '" + path + "': sample rate must be positive");
-  SaveReport rep;
-  for (float s : samples) {
-    if (!std::isfinite(s)) throw Error("cannot write '" + path + "': the signal holds NaN or Inf");
-    const float a = std::fabs(s);
-    rep.input_peak = std::max(rep.input_peak, a);
-    if (a > 1.0f) ++rep.clipped;
-  }
-  const double limit = std::pow(10.0, std::min(peak_dbfs, 0.0) / 20.0);
-  double gain = 1.0;
-  if (rep.input_peak > limit) {
-    gain = limit / rep.input_peak;
-    rep.limited = true;
-    rep.gain_db = 20.0 * std::log10(gain);
-  }
-  // Scaling to int16 is done here, rounding to nearest (libsndfile's own float path
-  // truncates when clipping is enabled, which costs 6 dB of SNR).
-  std::vector<float> scaled;
-  std::vector<short> pcm;
-  if (format == SampleFormat::pcm16) {
-    pcm.resize(samples.size());
-    for (std::size_t i = 0; i < samples.size(); ++i)
-      pcm[i] = short(std::clamp(std::lround(double(samples[i]) * gain * 32767.0), -32768L, 32767L));
-  } else {
-    scaled.resize(samples.size());
-    for (std::size_t i = 0; i < samples.size(); ++i) scaled[i] = float(samples[i] * gain);
-  }
-
-  // libsndfile writes through the temporary file's descriptor; commit() renames it into place.
-  AtomicFile out(path);
-  SF_INFO sfinfo{};
-  sfinfo.samplerate = sample_rate;
-  sfinfo.channels = 1;
-  sfinfo.format = SF_FORMAT_WAV | (format == SampleFormat::pcm16 ? SF_FORMAT_PCM_16 : SF_FORMAT_FLOAT);
-  {
-    // On a failed write the system's reason (errno: "no space left on device") says more
-    // than libsndfile's summary of it.
-    errno = 0;
-    SndfileHandle f(sf_open_fd(out.fd(), SFM_WRITE, &sfinfo, /*close_desc=*/SF_FALSE));
-    if (!f) throw Error("cannot write '" + path + "': " + (errno ? system_message(errno) : sndfile_message(nullptr)));
-    const sf_count_t n = sf_count_t(samples.size());
-    const sf_count_t wrote = format == SampleFormat::pcm16 ? sf_writef_short(f.get(), pcm.data(), n)
-                                                           : sf_writef_float(f.get(), scaled.data(), n);
-    if (wrote != n) throw Error("cannot write '" + path + "': " + (errno ? system_message(errno) : sndfile_message(f.get())));
-    sf_write_sync(f.get());
-  }
-  out.commit();
-  return rep;
+  WavWriter w(path, sample_rate, format, peak_dbfs);
+  w.write(samples.data(), samples.size());
+  return w.commit();
 }
 
 }  // namespace tessera::audio

@@ -33,13 +33,14 @@ void LogMel::compute(const float* samples, std::size_t length, Eigen::MatrixXf& 
   const std::size_t T = stft_.n_frames(length), hop = std::size_t(stft_.hop_length());
   stft_.reflect_pad(samples, length, padded_);
   out.resize(mel_.n_mels(), Eigen::Index(T));
-  for (std::size_t t = 0; t < T; ++t) {
-    stft_.analyze_frame(padded_.data() + t * hop, bins_.data());
-    magnitude(bins_.data(), bins_.size(), mag_.data());
-    float* col = out.col(Eigen::Index(t)).data();
-    mel_.apply(mag_.data(), col);
-    for (int m = 0; m < mel_.n_mels(); ++m) col[m] = std::log(std::max(col[m], floor_));
-  }
+  for (std::size_t t = 0; t < T; ++t) frame(padded_.data() + t * hop, out.col(Eigen::Index(t)).data());
+}
+
+void LogMel::frame(const float* padded_frame, float* col) {
+  stft_.analyze_frame(padded_frame, bins_.data());
+  magnitude(bins_.data(), bins_.size(), mag_.data());
+  mel_.apply(mag_.data(), col);
+  for (int m = 0; m < mel_.n_mels(); ++m) col[m] = std::log(std::max(col[m], floor_));
 }
 
 void LogMel::from_magnitude(const Eigen::MatrixXf& mag, Eigen::MatrixXf& out) const {

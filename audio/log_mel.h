@@ -20,6 +20,9 @@ class LogMel {
   // samples (L ≥ 1) -> M x T. Allocation-free per frame; out is resized.
   Eigen::MatrixXf compute(const std::vector<float>& samples);
   void compute(const float* samples, std::size_t length, Eigen::MatrixXf& out);
+  // One frame: N padded samples (frame t of the reflect-padded signal, stft.h) -> M values
+  // in col. compute() and LogMelStream both use it, so their frames agree bit for bit.
+  void frame(const float* padded_frame, float* col);
   // |X| (F x T) -> M x T.
   void from_magnitude(const Eigen::MatrixXf& mag, Eigen::MatrixXf& out) const;
 

@@ -1,11 +1,12 @@
 // decode.cpp — `tessera decode --model MODEL TOKENS.npy -o OUT.wav [--depth d] [--iters N]`:
-// codes → decoder → log-mel → mel inversion → Griffin-Lim → WAV (peak-limited).
+// codes → decoder → log-mel → mel inversion → Griffin-Lim → WAV (peak-limited), streamed.
 #include <cstdio>
 #include <filesystem>
 
 #include "audio/audio_io.h"
+#include "audio/chunked_synthesis.h"
+#include "audio/wav_writer.h"
 #include "audio/error.h"
-#include "audio/mel_inverse.h"
 #include "cli/command.h"
 #include "cli/output_path.h"
 #include "cli/progress.h"
@@ -70,15 +71,25 @@ int run_decode(const DecodeArgs& a) {
 
   audio::AudioConfig acfg = cfg.audio;
   if (a.iters >= 0) acfg.griffin_lim_iters = a.iters;
-  const Eigen::MatrixXf mel = tok->decode(codes, depth);
-  Progress bar("decode", acfg.griffin_lim_iters, "it/s");
-  const std::vector<float> y = audio::invert_log_mel(acfg, mel, 0, [&](int it, int) { bar.update(it); });
+  // Streamed: codes → log-mel in chunks (ChunkedDecoder) → audio in overlapping chunks
+  // (ChunkedSynthesis) → WavWriter, so memory does not grow with the length.
+  audio::WavWriter out(a.output, acfg.sample_rate, audio::SampleFormat::pcm16, acfg.output_peak_dbfs);
+  audio::ChunkedSynthesis syn(acfg, [&](const float* x, std::size_t n) { out.write(x, n); });
+  Progress bar("decode", double(codes.rows()), "code frames/s");
+  double frames = 0;
+  quant::ChunkedDecoder dec(*tok, depth, [&](const Eigen::Ref<const Eigen::MatrixXf>& mel) {
+    syn.push(mel);
+    bar.update(frames += double(mel.cols()) / tok->hop());
+  });
+  dec.push(codes);
+  dec.finish();
+  syn.finish();
   if (bar.elapsed() > 1.0) bar.finish();
-  const audio::SaveReport rep = audio::save_wav(a.output, y, acfg.sample_rate, audio::SampleFormat::pcm16,
-                                                acfg.output_peak_dbfs);
+  const double seconds = double(out.samples()) / acfg.sample_rate;
+  const audio::SaveReport rep = out.commit();
   warn_about_level(rep, a.output);
   std::printf("decoded   %s: %lld code frames at depth %d (%.2f s) -> %s\n", a.tokens.c_str(), (long long)m.rows, depth,
-              double(y.size()) / acfg.sample_rate, a.output.c_str());
+              seconds, a.output.c_str());
   return 0;
 }
 

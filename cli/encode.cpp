@@ -11,11 +11,9 @@
 
 #include "audio/append_file.h"
 #include "audio/atomic_file.h"
-#include "audio/audio_io.h"
 #include "audio/error.h"
 #include "audio/file_list.h"
 #include "audio/folder_lock.h"
-#include "audio/log_mel.h"
 #include "cli/command.h"
 #include "cli/file_workers.h"
 #include "cli/output_path.h"
@@ -174,11 +172,10 @@ int run_encode(const EncodeArgs& a) {
           return;
         }
         try {
+          // Streamed: memory does not grow with the file (tokenizer.h: encode_file).
           audio::SourceInfo src;
-          const audio::Audio au = audio::load_audio_as(f.path, cfg.audio.sample_rate, norm, &src);
+          r.codes = models[std::size_t(w)]->encode_file(f.path, depth, norm, &r.duration, &src);
           r.warnings = input_warnings(src, f.path, cfg.audio);
-          r.duration = au.duration();
-          r.codes = models[std::size_t(w)]->encode(au.samples, depth);
         } catch (const Error& e) {
           r.error = naming_file(f.path, e.what());
           return;

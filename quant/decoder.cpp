@@ -152,15 +152,12 @@ void Decoder::forward(const Tensor& zq, Tensor& y, const ParamSlab& slab, bool t
   // One long item at inference: split its latent frames over the lanes.
   if (!train && B == 1 && n_lanes > 1 && L >= 8 * n_lanes) {
     pool_.run([&](int l) {
-      Lane& Ln = lanes_[std::size_t(l)];
       const int lo = L * l / n_lanes, hi = L * (l + 1) / n_lanes;
       int a, b;
       input_range(lo * hop, hi * hop, L, a, b);
       CSeqView xs = zq.view();
       xs.data = zq.frame(0, a), xs.T = b - a;
-      Ln.chunk.resize(1, cfg_.n_mels, out_frames(b - a));
-      forward_lane(Ln, xs, Ln.chunk.view(), p, false);
-      std::copy_n(Ln.chunk.frame(0, (lo - a) * hop), std::size_t(hi - lo) * hop * cfg_.n_mels, y.frame(0, lo * hop));
+      forward_chunk(l, xs, a, lo, hi, y.frame(0, lo * hop), slab);
     });
     return;
   }
@@ -171,6 +168,17 @@ void Decoder::forward(const Tensor& zq, Tensor& y, const ParamSlab& slab, bool t
     if (Ln.nb == 0) return;
     forward_lane(Ln, zq.view().items(Ln.b0, Ln.nb), y.view().items(Ln.b0, Ln.nb), p, train);
   });
+}
+
+void Decoder::forward_chunk(int lane, const CSeqView& x, int a, int lo, int hi, float* y, const ParamSlab& slab) {
+  assert(x.B == 1 && x.C == cfg_.latent_dim && lo >= a);
+  Lane& Ln = lanes_[std::size_t(lane)];
+  const ParamView p{slab.params(), nullptr, 0};
+  const int hop = cfg_.hop();
+  Ln.chunk.resize(1, cfg_.n_mels, out_frames(x.T));
+  assert((hi - a) * hop <= Ln.chunk.T());
+  forward_lane(Ln, x, Ln.chunk.view(), p, false);
+  std::copy_n(Ln.chunk.frame(0, (lo - a) * hop), std::size_t(hi - lo) * hop * cfg_.n_mels, y);
 }
 
 void Decoder::backward(const Tensor& dy, Tensor& dzq, ParamSlab& slab) {

@@ -41,6 +41,16 @@ class Decoder {
 
   ParamRef params() const { return range_; }
 
+  // Chunked inference on one item (chunked_decoder.h drives it); lanes as in encoder.h.
+  int lanes() const { return int(lanes_.size()); }
+  // Latent frames [a, b) that output frames [lo, hi) of an L-frame input depend on (the
+  // receptive field, clamped to [0, L)).
+  void input_range(int lo, int hi, int L, int& a, int& b) const;
+  // Output frames [lo·hop, hi·hop) into y (M floats per frame) from x = the latent frames
+  // [a, b) that input_range(lo·hop, hi·hop, L) names, using lane `lane`'s buffers; bit for
+  // bit the same for the same (x, lo, hi).
+  void forward_chunk(int lane, const CSeqView& x, int a, int lo, int hi, float* y, const ParamSlab& slab);
+
  private:
   struct Stage {
     ConvTranspose1d up;
@@ -61,8 +71,6 @@ class Decoder {
 
   void forward_lane(Lane& lane, const CSeqView& x, const SeqView& y, const ParamView& p, bool train) const;
   void backward_lane(Lane& lane, const CSeqView& dy, const SeqView& dzq, const ParamView& p) const;
-  // Latent frames [a, b) needed for output frames [lo, hi) (clamped to [0, L)).
-  void input_range(int lo, int hi, int L, int& a, int& b) const;
 
   ModelConfig cfg_;
   ThreadPool& pool_;

@@ -161,16 +161,12 @@ void Encoder::forward(const Tensor& x, Tensor& z, const ParamSlab& slab, bool tr
   // One long item at inference: split its latent frames over the lanes.
   if (!train && B == 1 && n_lanes > 1 && Tz >= 8 * n_lanes) {
     pool_.run([&](int l) {
-      Lane& L = lanes_[std::size_t(l)];
       const int lo = Tz * l / n_lanes, hi = Tz * (l + 1) / n_lanes;
       int a, b;
       input_range(lo, hi, T, a, b);
       CSeqView xs = x.view();
       xs.data = x.frame(0, a), xs.T = b - a;
-      L.chunk.resize(1, cfg_.latent_dim, out_frames(b - a));
-      forward_lane(L, xs, L.chunk.view(), p, false);
-      const int off = lo - a / cfg_.hop();
-      std::copy_n(L.chunk.frame(0, off), std::size_t(hi - lo) * cfg_.latent_dim, z.frame(0, lo));
+      forward_chunk(l, xs, a, lo, hi, z.frame(0, lo), slab);
     });
     return;
   }
@@ -181,6 +177,16 @@ void Encoder::forward(const Tensor& x, Tensor& z, const ParamSlab& slab, bool tr
     if (L.nb == 0) return;
     forward_lane(L, x.view().items(L.b0, L.nb), z.view().items(L.b0, L.nb), p, train);
   });
+}
+
+void Encoder::forward_chunk(int lane, const CSeqView& x, int a, int lo, int hi, float* z, const ParamSlab& slab) {
+  assert(x.B == 1 && x.C == cfg_.n_mels && a % cfg_.hop() == 0 && lo >= a / cfg_.hop());
+  Lane& L = lanes_[std::size_t(lane)];
+  const ParamView p{slab.params(), nullptr, 0};
+  L.chunk.resize(1, cfg_.latent_dim, out_frames(x.T));
+  assert(hi - a / cfg_.hop() <= L.chunk.T());
+  forward_lane(L, x, L.chunk.view(), p, false);
+  std::copy_n(L.chunk.frame(0, lo - a / cfg_.hop()), std::size_t(hi - lo) * cfg_.latent_dim, z);
 }
 
 void Encoder::backward(const Tensor& dz, ParamSlab& slab) {

@@ -49,6 +49,18 @@ class Encoder {
   // The slab range holding this encoder's parameters.
   ParamRef params() const { return range_; }
 
+  // Chunked inference on one item (chunked_encoder.h drives it). Lanes are independent
+  // buffer sets: different lanes may run at once, one thread each.
+  int lanes() const { return int(lanes_.size()); }
+  // Input frames [a, b) that latent frames [lo, hi) of a T-frame input depend on (the
+  // receptive field, clamped to [0, T)); a is a multiple of the hop.
+  void input_range(int lo, int hi, int T, int& a, int& b) const;
+  // Latent frames [lo, hi) into z (D floats per frame, hi − lo frames) from x = the input
+  // frames [a, b) that input_range(lo, hi, T) names, using lane `lane`'s buffers. The
+  // zero padding at a = 0 and b = T is the whole input's, so the frames equal the
+  // whole-input forward's up to float rounding, and bit for bit for the same (x, lo, hi).
+  void forward_chunk(int lane, const CSeqView& x, int a, int lo, int hi, float* z, const ParamSlab& slab);
+
  private:
   struct Stage {
     std::vector<ResidualUnit> units;
@@ -70,8 +82,6 @@ class Encoder {
 
   void forward_lane(Lane& lane, const CSeqView& x, const SeqView& z, const ParamView& p, bool train) const;
   void backward_lane(Lane& lane, const CSeqView& dz, const ParamView& p) const;
-  // Input frames [a, b) needed for latent frames [lo, hi) (clamped to [0, T)).
-  void input_range(int lo, int hi, int T, int& a, int& b) const;
 
   ModelConfig cfg_;
   ThreadPool& pool_;

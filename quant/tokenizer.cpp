@@ -6,7 +6,7 @@
 
 #include "audio/error.h"
 #include "audio/log_mel.h"
-#include "audio/mel_inverse.h"
+#include "audio/chunked_synthesis.h"
 #include "quant/checkpoint.h"
 
 namespace tessera::quant {
@@ -47,24 +47,24 @@ Eigen::MatrixXi Tokenizer::encode(const std::vector<float>& samples, int depth) 
 std::vector<float> Tokenizer::synthesize(const Eigen::MatrixXf& log_mel, int iters) const {
   audio::AudioConfig acfg = cfg_.audio;
   if (iters >= 0) acfg.griffin_lim_iters = iters;
-  return audio::invert_log_mel(acfg, log_mel, 0);
+  std::vector<float> out;
+  audio::ChunkedSynthesis syn(acfg, [&](const float* x, std::size_t n) { out.insert(out.end(), x, x + n); });
+  syn.push(log_mel);
+  syn.finish();
+  return out;
 }
 
 Eigen::MatrixXi Tokenizer::encode(const Eigen::MatrixXf& log_mel, int depth) {
-  if (depth < 1 || depth > stages())
-    throw Error("depth " + std::to_string(depth) + " is outside 1.." + std::to_string(stages()) +
-                " (the model's stages)");
   const int M = cfg_.model.n_mels;
   if (log_mel.rows() != M)
     throw Error("features have " + std::to_string(log_mel.rows()) + " mel bands; the model expects " +
                 std::to_string(M));
-  const int T = int(log_mel.cols()) / hop() * hop();
-  if (T < hop()) throw Error("audio too short: needs at least " + std::to_string(hop()) + " frames");
-  x_.resize(1, M, T);
-  x_.mat(0) = (log_mel.leftCols(T).colwise() - stats_.mean).array().colwise() / stats_.std.array();
-  enc_.forward(x_, z_, slab_, /*train=*/false);
-  Eigen::MatrixXi codes(z_.T(), depth);
-  rvq_.encode(z_.all(), depth, codes);
+  Eigen::MatrixXi codes(log_mel.cols() / hop(), std::max(depth, 0));
+  Eigen::Index row = 0;
+  ChunkedEncoder enc(*this, depth, ChunkedEncoder::append_to(codes, row));
+  enc.push(log_mel);
+  enc.finish();
+  codes.conservativeResize(row, depth);
   return codes;
 }
 
@@ -72,16 +72,14 @@ Eigen::MatrixXf Tokenizer::decode(const Eigen::MatrixXi& codes, int depth) {
   if (depth < 1 || depth > stages() || depth > codes.cols())
     throw Error("depth " + std::to_string(depth) + " is outside 1.." +
                 std::to_string(std::min<Eigen::Index>(stages(), codes.cols())) + " (stages of the model and the codes)");
-  const int L = int(codes.rows());
-  if (L < 1) throw Error("no code frames to decode");
-  const int K = cfg_.codebooks.codes;
-  const auto used = codes.leftCols(depth);
-  if (used.minCoeff() < 0 || used.maxCoeff() >= K)
-    throw Error("codes outside 0.." + std::to_string(K - 1) + " (the model's codebook size is " + std::to_string(K) + ")");
-  zq_.resize(1, cfg_.codebooks.dim, L);
-  rvq_.decode(codes, depth, zq_.all());
-  dec_.forward(zq_, y_, slab_, /*train=*/false);
-  Eigen::MatrixXf out = (y_.mat(0).array().colwise() * stats_.std.array()).colwise() + stats_.mean.array();
+  Eigen::MatrixXf out(cfg_.model.n_mels, codes.rows() * hop());
+  Eigen::Index col = 0;
+  ChunkedDecoder dec(*this, depth, [&](const Eigen::Ref<const Eigen::MatrixXf>& y) {
+    out.middleCols(col, y.cols()) = y;
+    col += y.cols();
+  });
+  dec.push(codes);
+  dec.finish();
   return out;
 }
 

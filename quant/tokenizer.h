@@ -9,6 +9,13 @@
 //                                                           // tok->sample_rate(); L x S codes
 //   Eigen::MatrixXf mel = tok->decode(codes, /*depth=*/2);  // log-mel from the first 2 stages
 //   std::vector<float> audio = tok->synthesize(mel);         // Griffin-Lim, model's settings
+//   Eigen::MatrixXi long_codes = tok->encode_file("talk.flac"); // streamed, bounded memory
+//
+// Long inputs in bounded memory, piece by piece: audio::AudioStream (audio_stream.h) →
+// audio::LogMelStream (log_mel_stream.h) → ChunkedEncoder (chunked_encoder.h) → codes, and
+// ChunkedDecoder (chunked_decoder.h) → audio::ChunkedSynthesis (chunked_synthesis.h) →
+// audio::WavWriter (wav_writer.h). encode/decode below run through the same chunked
+// classes, so streamed and in-memory results are identical.
 //
 // tessera::audio::load_audio_as(path, tok->sample_rate(), nullptr) reads and resamples a
 // file. A Tokenizer is not thread-safe (it keeps scratch buffers); use one per thread, or
@@ -19,6 +26,9 @@
 
 #include <Eigen/Core>
 
+#include "audio/audio_io.h"
+#include "quant/chunked_decoder.h"
+#include "quant/chunked_encoder.h"
 #include "quant/codebook/residual_codebooks.h"
 #include "quant/corpus.h"
 #include "quant/decoder.h"
@@ -60,10 +70,19 @@ class Tokenizer {
   // Mono samples at sample_rate() → codes L x depth (depth 0 = all stages). Throws
   // tessera::Error when the audio is shorter than one code frame or depth is out of range.
   Eigen::MatrixXi encode(const std::vector<float>& samples, int depth = 0);
+  // An audio file → codes L x depth (depth 0 = all stages), streamed block by block:
+  // memory does not grow with the file's length (audio_stream.h, log_mel_stream.h,
+  // chunked_encoder.h), and the codes equal
+  // encode(audio::load_audio_as(path, sample_rate(), normalize_dbfs).samples, depth) bit for
+  // bit. Only the codes are kept (L·depth ints: 1 h at depth 8 is 2.9 MB). `duration`
+  // receives the length in seconds. Throws tessera::Error for a bad or too-short file.
+  Eigen::MatrixXi encode_file(const std::string& path, int depth = 0, const double* normalize_dbfs = nullptr,
+                              double* duration = nullptr, audio::SourceInfo* source = nullptr);
   // Mono samples → the model's natural-log log-mel M x T (the features it encodes).
   Eigen::MatrixXf log_mel(const std::vector<float>& samples) const;
   // Log-mel M x T → samples at sample_rate() by the model's mel inversion and Griffin-Lim
-  // (`iters` < 0: the model's audio.griffin_lim_iters). Not peak-limited: audio::save_wav is.
+  // (`iters` < 0: the model's audio.griffin_lim_iters), in overlapping 20 s chunks past
+  // 20 s (chunked_synthesis.h). Not peak-limited: audio::save_wav is.
   std::vector<float> synthesize(const Eigen::MatrixXf& log_mel, int iters = -1) const;
 
   // Natural-log log-mel M x T (unnormalised) → codes L x depth, L = T / hop (frames past
@@ -82,7 +101,6 @@ class Tokenizer {
   Decoder dec_;
   ResidualCodebooks rvq_;
   BandStats stats_;
-  Tensor x_, z_, zq_, y_;  // inference scratch
 };
 
 // Threads for a `threads` setting: 0 means every hardware thread.
