@@ -4,9 +4,12 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
+#include <cstring>
 #include <filesystem>
+#include <limits>
 #include <memory>
 #include <sstream>
+#include <string_view>
 #include <unistd.h>
 
 #include <sndfile.h>
@@ -38,17 +41,35 @@ std::string describe_format(int format) {
 constexpr int kMaxChannels = 256;
 constexpr int kMinRate = 1000, kMaxRate = 768000;
 
-}  // namespace
+// libsndfile's virtual I/O over a byte buffer (read only).
+struct MemoryFile {
+  std::string_view bytes;
+  sf_count_t pos = 0;
+};
+sf_count_t memory_length(void* user) { return sf_count_t(static_cast<MemoryFile*>(user)->bytes.size()); }
+sf_count_t memory_tell(void* user) { return static_cast<MemoryFile*>(user)->pos; }
+sf_count_t memory_seek(sf_count_t offset, int whence, void* user) {
+  auto* m = static_cast<MemoryFile*>(user);
+  const sf_count_t size = sf_count_t(m->bytes.size());
+  const sf_count_t base = whence == SEEK_CUR ? m->pos : whence == SEEK_END ? size : 0;
+  if (offset < -base || offset > size - base) return -1;   // stays within [0, size]
+  m->pos = base + offset;
+  return m->pos;
+}
+sf_count_t memory_read(void* dst, sf_count_t count, void* user) {
+  auto* m = static_cast<MemoryFile*>(user);
+  const sf_count_t n = std::clamp<sf_count_t>(count, 0, sf_count_t(m->bytes.size()) - m->pos);
+  if (n > 0) std::memcpy(dst, m->bytes.data() + m->pos, std::size_t(n));
+  m->pos += n;
+  return n;
+}
+sf_count_t memory_write(const void*, sf_count_t, void*) { return 0; }
 
-Audio load_audio(const std::string& path, SourceInfo* info) {
-  std::error_code ec;
-  if (!std::filesystem::exists(path, ec))
-    throw Error("cannot open audio file '" + path + "': no such file");
-  if (std::filesystem::is_directory(path, ec))
-    throw Error("cannot open audio file '" + path + "': it is a folder");
-  SF_INFO sfinfo{};
-  SndfileHandle f(sf_open(path.c_str(), SFM_READ, &sfinfo));
-  if (!f) throw Error("cannot open audio file '" + path + "': " + sf_strerror(nullptr));
+// Everything after opening, shared by the file and the memory forms: checks the header,
+// reads, downmixes and checks the samples. `file_bytes` is the encoded size (unknown: the
+// largest value).
+Audio read_opened(SNDFILE* sf, const SF_INFO& sfinfo, const std::string& path, std::uint64_t file_bytes,
+                  SourceInfo* info) {
   if (sfinfo.channels <= 0 || sfinfo.channels > kMaxChannels)
     throw Error("audio file '" + path + "' has " + std::to_string(sfinfo.channels) +
                 " channels; expected 1 to " + std::to_string(kMaxChannels));
@@ -57,17 +78,16 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
                 " Hz; expected " + std::to_string(kMinRate) + " to " + std::to_string(kMaxRate) + " Hz");
   if (sfinfo.frames <= 0) throw Error("audio file '" + path + "' holds no samples");
   // Guard against headers that claim more data than the file could hold.
-  const auto file_bytes = std::filesystem::file_size(path, ec);
   const bool compressed = (sfinfo.format & SF_FORMAT_TYPEMASK) == SF_FORMAT_FLAC ||
                           (sfinfo.format & SF_FORMAT_TYPEMASK) == SF_FORMAT_OGG;
-  if (!compressed && !ec && double(sfinfo.frames) * sfinfo.channels > 8.0 * double(file_bytes) + 1e6)
+  if (!compressed && double(sfinfo.frames) * sfinfo.channels > 8.0 * double(file_bytes) + 1e6)
     throw Error("audio file '" + path + "' claims more samples than it holds (damaged header?)");
 
   // libsndfile shortens the data chunk of a cut file to what is there and notes it in its
   // log ("data : 32000 (should be 200)"); a cut file is refused rather than half-read.
   {
     std::vector<char> log(8192, '\0');
-    sf_command(f.get(), SFC_GET_LOG_INFO, log.data(), int(log.size()) - 1);
+    sf_command(sf, SFC_GET_LOG_INFO, log.data(), int(log.size()) - 1);
     std::istringstream lines(std::string(log.data()));
     for (std::string line; std::getline(lines, line);)
       if ((line.rfind("data", 0) == 0 || line.rfind("SSND", 0) == 0) && line.find("(should be") != std::string::npos)
@@ -79,15 +99,18 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
     info->frames = sfinfo.frames;
     info->format = describe_format(sfinfo.format);
   }
-  sf_command(f.get(), SFC_SET_NORM_FLOAT, nullptr, SF_TRUE);
+  sf_command(sf, SFC_SET_NORM_FLOAT, nullptr, SF_TRUE);
   Audio out;
   out.sample_rate = sfinfo.samplerate;
   const int ch = sfinfo.channels;
   constexpr sf_count_t kChunk = 65536;
   std::vector<float> buf(std::size_t(kChunk) * ch);
-  out.samples.reserve(std::size_t(std::min<sf_count_t>(sfinfo.frames, sf_count_t(1) << 31)));
+  // The header's frame count is only a hint for compressed files: reserve no more than the
+  // encoded size could plausibly hold, so a forged count cannot demand gigabytes up front.
+  const double plausible = std::min(16.0 * double(file_bytes) + 65536.0, double(1u << 31));
+  out.samples.reserve(std::size_t(std::min(double(sfinfo.frames), plausible)));
   for (;;) {
-    const sf_count_t got = sf_readf_float(f.get(), buf.data(), kChunk);
+    const sf_count_t got = sf_readf_float(sf, buf.data(), kChunk);
     if (got <= 0) break;
     for (sf_count_t i = 0; i < got; ++i) {
       float sum = 0;
@@ -95,8 +118,8 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
       out.samples.push_back(sum / float(ch));
     }
   }
-  if (sf_error(f.get()) != SF_ERR_NO_ERROR)
-    throw Error("cannot read audio file '" + path + "': " + sf_strerror(f.get()));
+  if (sf_error(sf) != SF_ERR_NO_ERROR)
+    throw Error("cannot read audio file '" + path + "': " + sf_strerror(sf));
   if (out.samples.empty()) throw Error("audio file '" + path + "' holds no samples (truncated?)");
   if (sf_count_t(out.samples.size()) < sfinfo.frames)
     throw Error("audio file '" + path + "' is truncated: its header promises " + std::to_string(sfinfo.frames) +
@@ -106,6 +129,30 @@ Audio load_audio(const std::string& path, SourceInfo* info) {
       throw Error("audio file '" + path + "' holds a non-finite sample (NaN or Inf) at " +
                   std::to_string(double(i) / out.sample_rate) + " s");
   return out;
+}
+
+}  // namespace
+
+Audio load_audio(const std::string& path, SourceInfo* info) {
+  std::error_code ec;
+  if (!std::filesystem::exists(path, ec))
+    throw Error("cannot open audio file '" + path + "': no such file");
+  if (std::filesystem::is_directory(path, ec))
+    throw Error("cannot open audio file '" + path + "': it is a folder");
+  SF_INFO sfinfo{};
+  SndfileHandle f(sf_open(path.c_str(), SFM_READ, &sfinfo));
+  if (!f) throw Error("cannot open audio file '" + path + "': " + sf_strerror(nullptr));
+  const auto file_bytes = std::filesystem::file_size(path, ec);
+  return read_opened(f.get(), sfinfo, path, ec ? std::numeric_limits<std::uint64_t>::max() : file_bytes, info);
+}
+
+Audio load_audio_memory(std::string_view bytes, const std::string& name, SourceInfo* info) {
+  MemoryFile m{bytes};
+  SF_VIRTUAL_IO io{memory_length, memory_seek, memory_read, memory_write, memory_tell};
+  SF_INFO sfinfo{};
+  SndfileHandle f(sf_open_virtual(&io, SFM_READ, &sfinfo, &m));
+  if (!f) throw Error("cannot open audio file '" + name + "': " + sf_strerror(nullptr));
+  return read_opened(f.get(), sfinfo, name, bytes.size(), info);
 }
 
 Audio load_audio_as(const std::string& path, int sample_rate, const double* normalize_dbfs,

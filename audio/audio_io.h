@@ -2,6 +2,7 @@
 // Samples are mono float in [-1, 1] after loading (channels averaged).
 #pragma once
 #include <string>
+#include <string_view>
 #include <vector>
 
 namespace tessera::audio {
@@ -24,6 +25,8 @@ struct SourceInfo {
 // channels. Throws tessera::Error for a missing, unreadable, empty or non-finite file.
 // Usage: Audio a = load_audio("in.flac"); // a.sample_rate is the file's rate
 Audio load_audio(const std::string& path, SourceInfo* info = nullptr);
+// The same over an encoded file already in memory; `name` stands for its path in messages.
+Audio load_audio_memory(std::string_view bytes, const std::string& name, SourceInfo* info = nullptr);
 
 // load_audio, then resampling to `sample_rate` (libsoxr, high quality) and, when
 // normalize_dbfs is given, peak normalisation to that level.

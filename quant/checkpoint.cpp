@@ -37,7 +37,11 @@ std::string save_model(const Tokenizer& tok, const std::string& path, std::int64
 }
 
 std::unique_ptr<Tokenizer> load_model(const std::string& path, int threads, ModelInfo* info) {
-  SafetensorsReader r(path);
+  return load_model(SafetensorsReader(path), threads, info);
+}
+
+std::unique_ptr<Tokenizer> load_model(const SafetensorsReader& r, int threads, ModelInfo* info) {
+  const std::string& path = r.path();
   const auto& meta = r.metadata();
   auto it = meta.find("format");
   if (it == meta.end() || it->second != kModelFormat)

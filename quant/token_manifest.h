@@ -4,6 +4,7 @@
 // "tokens" is relative to the manifest's folder and may not leave it.
 #pragma once
 #include <cstdint>
+#include <istream>
 #include <string>
 #include <vector>
 
@@ -30,6 +31,8 @@ ManifestEntry parse_manifest_line(const std::string& line, const std::string& wh
 // Reads a whole manifest. Malformed lines are skipped and counted in *bad (a run killed
 // while appending leaves at most one); nullptr makes them errors instead.
 std::vector<ManifestEntry> read_manifest(const std::string& path, int* bad = nullptr);
+// The same over a stream; `path` names it in messages.
+std::vector<ManifestEntry> read_manifest(std::istream& in, const std::string& path, int* bad = nullptr);
 
 // True when `relative` stays inside its folder (no absolute path, no ".." component).
 bool stays_inside(const std::string& relative);
