@@ -19,16 +19,18 @@ namespace tessera::audio {
 static Audio read_all(AudioStream& in, SourceInfo* info) {
   Audio out;
   out.sample_rate = in.sample_rate();
-  out.samples.resize(std::size_t(in.length()));
+  // The header's length is only a claim (compressed files are not checked against their
+  // size): grow block by block, so a forged length cannot demand gigabytes up front.
+  constexpr std::size_t kBlock = 65536;
   std::size_t n = 0;
-  while (n < out.samples.size()) {
-    const std::size_t got = in.read(out.samples.data() + n, out.samples.size() - n);
-    if (got == 0) break;
+  for (;;) {
+    out.samples.resize(n + kBlock);
+    const std::size_t got = in.read(out.samples.data() + n, kBlock);
     n += got;
+    if (got == 0) break;   // read() returning 0 runs the end-of-file truncation checks
   }
-  float probe;
-  if (n == out.samples.size()) in.read(&probe, 1);  // reaches the end: the truncation checks run
   out.samples.resize(n);
+  out.samples.shrink_to_fit();
   if (info) *info = in.source();   // after the reads: peak and clipping cover the whole file
   return out;
 }

@@ -2,6 +2,7 @@
 // Samples are mono float in [-1, 1] after loading (channels averaged).
 #pragma once
 #include <string>
+#include <string_view>
 #include <vector>
 
 namespace tessera::audio {

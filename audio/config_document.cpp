@@ -31,6 +31,14 @@ std::string shown(const YAML::Node& n) {
   return "nothing";
 }
 
+// A mapping key as text. YAML allows a list or a mapping as a key ("? [a, b]: 1"), which
+// yaml-cpp cannot convert to a string (it would throw its own exception type).
+std::string key_text(const YAML::Node& key, const std::string& file) {
+  if (key.IsScalar()) return key.Scalar();
+  throw Error(file + ":" + std::to_string(key.Mark().line + 1) + ": expected a plain key, got " +
+              (key.IsNull() ? std::string("an empty key") : shown(key)));
+}
+
 }  // namespace
 
 ConfigDocument ConfigDocument::parse(const std::string& text, const std::string& name) {
@@ -72,7 +80,7 @@ void ConfigDocument::apply_override(const std::string& assignment) {
 
 void ConfigDocument::check_sections(std::initializer_list<const char*> sections) const {
   for (const auto& kv : root_) {
-    const std::string k = kv.first.as<std::string>();
+    const std::string k = key_text(kv.first, file_);
     bool known = false;
     std::string allowed;
     for (const char* s : sections) {
@@ -183,7 +191,7 @@ void ConfigSection::get(const char* key, std::vector<int>& v) {
 
 void ConfigSection::finish() const {
   for (const auto& kv : node_) {
-    const std::string k = kv.first.as<std::string>();
+    const std::string k = key_text(kv.first, doc_->file_);
     if (seen_.count(k)) continue;
     std::string known;
     for (const auto& s : seen_) known += (known.empty() ? "" : ", ") + s;

@@ -83,8 +83,6 @@ int run_encode(const EncodeArgs& a) {
   std::error_code ec;
   if (fs::exists(a.out, ec) && !fs::is_directory(a.out, ec))
     throw Error("--out '" + a.out + "': it is a file, not a folder");
-  std::unique_ptr<AtomicFile> flat;   // opened first: a bad --flat path is refused before --out is made
-  if (!a.flat.empty()) flat = std::make_unique<AtomicFile>(a.flat);
   const bool fresh_out = !fs::exists(a.out, ec);   // made by this run: removed if nothing lands in it
   // One writer per manifest: shards of one corpus may share the folder, a second run of
   // the same shard may not.
@@ -93,6 +91,10 @@ int run_encode(const EncodeArgs& a) {
                                     : ".tessera.shard-" + std::to_string(shard) + "-of-" + std::to_string(shards) + ".lock");
   if (!lock.takeover().empty())
     std::fprintf(stderr, "note: took over the lock of %s, which is no longer running\n", lock.takeover().c_str());
+  // After the lock has made --out, so --flat may lie inside it; a bad --flat path still
+  // leaves nothing behind (the lock removes the folder it made).
+  std::unique_ptr<AtomicFile> flat;
+  if (!a.flat.empty()) flat = std::make_unique<AtomicFile>(a.flat);
   const std::string manifest = (fs::path(a.out) / (shards == 1 ? std::string("manifest.jsonl")
                                                                : "manifest.shard-" + std::to_string(shard) + "-of-" +
                                                                      std::to_string(shards) + ".jsonl"))

@@ -1,6 +1,7 @@
 // checkpoint.cpp — model file layout.
 #include "quant/checkpoint.h"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 
@@ -11,6 +12,23 @@ namespace tessera::quant {
 namespace {
 
 Shape to_shape(const std::vector<int>& v) { return Shape(v.begin(), v.end()); }
+
+// A lower bound on the floats a model of `cfg` stores: the weights of the layers the
+// encoder and decoder always have (quant/encoder.cpp, quant/decoder.cpp; biases left out),
+// the codebooks and the band statistics. Checked against the file before anything is
+// allocated, so that a small file whose stored config names a huge model is refused
+// instead of allocating gigabytes. In double: the sizes may exceed 64-bit integers.
+double min_model_floats(const ExperimentConfig& cfg) {
+  const ModelConfig& m = cfg.model;
+  const double C = m.channels, M = m.n_mels, D = m.latent_dim;
+  const double per_stage = double(m.dilations.size()) * C * C * (m.residual_kernel + 1);   // conv_dil + conv_1x1
+  double n = 0;
+  for (int s : m.strides) n += 2 * (per_stage + C * C * ModelConfig::stage_kernel(s));   // down / up
+  n += C * M * m.kernel_in + D * C * m.kernel_out;                                      // encoder in, out
+  n += C * D * m.kernel_in + M * C * m.decoder_kernel_out;                              // decoder in, out
+  n += double(cfg.codebooks.stages) * cfg.codebooks.codes * cfg.codebooks.dim + 2 * M;
+  return n;
+}
 
 }  // namespace
 
@@ -62,7 +80,11 @@ std::string save_model(const Tokenizer& tok, const std::string& path, std::int64
 }
 
 std::unique_ptr<Tokenizer> load_model(const std::string& path, int threads, ModelInfo* info) {
-  SafetensorsReader r(path);
+  return load_model(SafetensorsReader(path), threads, info);
+}
+
+std::unique_ptr<Tokenizer> load_model(const SafetensorsReader& r, int threads, ModelInfo* info) {
+  const std::string& path = r.path();
   const auto& meta = r.metadata();
   auto it = meta.find("format");
   if (it == meta.end() || it->second != kModelFormat)
@@ -78,6 +100,12 @@ std::unique_ptr<Tokenizer> load_model(const std::string& path, int threads, Mode
   } catch (const Error& e) {
     throw Error(std::string("the config stored in the model is invalid: ") + e.what());
   }
+  std::uint64_t stored = 0;
+  for (const TensorInfo& t : r.tensors()) stored += t.end - t.begin;
+  if (min_model_floats(cfg) * sizeof(float) > double(stored))
+    throw Error(path + ": the stored config describes a model of at least " +
+                std::to_string(std::uint64_t(std::min(min_model_floats(cfg), 1e19))) +
+                " parameters; the file holds " + std::to_string(stored) + " bytes of tensors");
   auto tok = std::make_unique<Tokenizer>(cfg, threads);
   read_model_tensors(r, *tok, "");
   const std::size_t expected = tok->slab().entries().size() + 3;

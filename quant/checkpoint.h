@@ -38,5 +38,8 @@ std::string save_model(const Tokenizer& tok, const std::string& path, std::int64
 // Reads a model file, checks format, version, every tensor's name, dtype and shape
 // against the stored config; throws tessera::Error naming the file and the problem.
 std::unique_ptr<Tokenizer> load_model(const std::string& path, int threads, ModelInfo* info = nullptr);
+// The same checks over a file already read (e.g. from memory).
+class SafetensorsReader;
+std::unique_ptr<Tokenizer> load_model(const SafetensorsReader& r, int threads, ModelInfo* info = nullptr);
 
 }  // namespace tessera::quant

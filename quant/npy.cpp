@@ -173,17 +173,13 @@ void write_npy_i16(const std::string& path, const std::int16_t* data, std::int64
   f.commit();
 }
 
-void read_npy_i16(const std::string& path, Int16Matrix& out) {
-  auto fail = [&](const std::string& msg) { throw Error(path + ": " + msg); };
-  std::unique_ptr<std::FILE, FileCloser> f(std::fopen(path.c_str(), "rb"));
-  if (!f) throw Error("cannot open '" + path + "': " + std::strerror(errno));
-  struct stat st {};
-  if (::fstat(::fileno(f.get()), &st) != 0 || !S_ISREG(st.st_mode)) fail("not a regular file");
-  const std::uint64_t file_size = std::uint64_t(st.st_size);
-  auto read_exact = [&](void* dst, std::size_t n) {
-    if (n && std::fread(dst, 1, n, f.get()) != n) fail("cannot read (file changed while reading?)");
-  };
+namespace {
 
+// The reader proper, shared by the file and the memory forms: `size` is the whole input's
+// length, read_exact(dst, n) copies the next n bytes (or throws).
+template <class ReadExact>
+void parse_npy(const std::string& path, std::uint64_t file_size, ReadExact&& read_exact, Int16Matrix& out) {
+  auto fail = [&](const std::string& msg) { throw Error(path + ": " + msg); };
   std::uint8_t pre[8];
   if (file_size < 10) fail("file is " + std::to_string(file_size) + " bytes, too short for a .npy file");
   read_exact(pre, 8);
@@ -230,6 +226,29 @@ void read_npy_i16(const std::string& path, Int16Matrix& out) {
   out.cols = h.shape[1];
   out.data.resize(std::size_t(need / 2));
   read_exact(out.data.data(), std::size_t(need));
+}
+
+}  // namespace
+
+void read_npy_i16(const std::string& path, Int16Matrix& out) {
+  std::unique_ptr<std::FILE, FileCloser> f(std::fopen(path.c_str(), "rb"));
+  if (!f) throw Error("cannot open '" + path + "': " + std::strerror(errno));
+  struct stat st {};
+  if (::fstat(::fileno(f.get()), &st) != 0 || !S_ISREG(st.st_mode)) throw Error(path + ": not a regular file");
+  auto read_exact = [&](void* dst, std::size_t n) {
+    if (n && std::fread(dst, 1, n, f.get()) != n) throw Error(path + ": cannot read (file changed while reading?)");
+  };
+  parse_npy(path, std::uint64_t(st.st_size), read_exact, out);
+}
+
+void parse_npy_i16(std::string_view bytes, const std::string& name, Int16Matrix& out) {
+  std::size_t pos = 0;
+  auto read_exact = [&](void* dst, std::size_t n) {   // parse_npy checks sizes before reading
+    if (n > bytes.size() - pos) throw Error(name + ": cannot read past the end of the data");
+    if (n) std::memcpy(dst, bytes.data() + pos, n);
+    pos += n;
+  };
+  parse_npy(name, bytes.size(), read_exact, out);
 }
 
 Int16Matrix read_npy_i16(const std::string& path) {

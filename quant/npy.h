@@ -9,6 +9,7 @@
 #pragma once
 #include <cstdint>
 #include <string>
+#include <string_view>
 #include <vector>
 
 namespace tessera::quant {
@@ -30,5 +31,7 @@ void write_npy_i16(const std::string& path, const std::int16_t* data, std::int64
 // out.data's capacity.
 Int16Matrix read_npy_i16(const std::string& path);
 void read_npy_i16(const std::string& path, Int16Matrix& out);
+// The same reader over bytes already in memory; `name` stands for the file in messages.
+void parse_npy_i16(std::string_view bytes, const std::string& name, Int16Matrix& out);
 
 }  // namespace tessera::quant

@@ -352,17 +352,27 @@ void SafetensorsWriter::write(const std::string& path) const {
 // ---------------------------------------------------------------------------- reader
 
 SafetensorsReader::SafetensorsReader(std::string path) : path_(std::move(path)) {
-  auto fail = [&](const std::string& msg) { throw Error(path_ + ": " + msg); };
   FilePtr f(std::fopen(path_.c_str(), "rb"));
   if (!f) throw Error("cannot open '" + path_ + "': " + std::strerror(errno));
   struct stat st {};
-  if (::fstat(::fileno(f.get()), &st) != 0 || !S_ISREG(st.st_mode)) fail("not a regular file");
-  const std::uint64_t file_size = std::uint64_t(st.st_size);
-  auto read_exact = [&](void* dst, std::uint64_t n, const char* what) {
+  if (::fstat(::fileno(f.get()), &st) != 0 || !S_ISREG(st.st_mode)) throw Error(path_ + ": not a regular file");
+  load(std::uint64_t(st.st_size), [&](void* dst, std::uint64_t n, const char* what) {
     if (n && std::fread(dst, 1, n, f.get()) != n)
-      fail(std::string("cannot read the ") + what + " (file shorter than its header says?)");
-  };
+      throw Error(path_ + ": cannot read the " + what + " (file shorter than its header says?)");
+  });
+}
 
+SafetensorsReader::SafetensorsReader(std::string name, std::string_view bytes) : path_(std::move(name)) {
+  std::uint64_t pos = 0;
+  load(bytes.size(), [&](void* dst, std::uint64_t n, const char* what) {   // load() checks sizes first
+    if (n > bytes.size() - pos) throw Error(path_ + ": cannot read the " + what + " past the end of the data");
+    if (n) std::memcpy(dst, bytes.data() + pos, n);
+    pos += n;
+  });
+}
+
+void SafetensorsReader::load(std::uint64_t file_size, const ReadExact& read_exact) {
+  auto fail = [&](const std::string& msg) { throw Error(path_ + ": " + msg); };
   if (file_size < 8)
     fail("file is " + std::to_string(file_size) + " bytes, too short for the 8-byte header length");
   std::uint8_t len[8];

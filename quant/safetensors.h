@@ -14,6 +14,7 @@
 #include <cstddef>
 #include <cstdint>
 #include <cstring>
+#include <functional>
 #include <map>
 #include <set>
 #include <memory>
@@ -97,6 +98,8 @@ class SafetensorsReader {
   static constexpr std::size_t kMaxRank = 64;                     // ours; no real tensor is near
 
   explicit SafetensorsReader(std::string path);
+  // The same reader over a file already in memory; `name` stands for its path in messages.
+  SafetensorsReader(std::string name, std::string_view bytes);
 
   const std::string& path() const { return path_; }
   const std::vector<TensorInfo>& tensors() const { return tensors_; }   // in data-block order
@@ -126,6 +129,9 @@ class SafetensorsReader {
   }
 
  private:
+  // read_exact(dst, n, what) copies the next n bytes of the input or throws.
+  using ReadExact = std::function<void(void*, std::uint64_t, const char*)>;
+  void load(std::uint64_t size, const ReadExact& read_exact);   // the parser, for both sources
   const TensorInfo& checked(std::string_view name, Dtype dtype, const Shape* shape) const;
   template <class T>
   std::vector<T> copy_out(const TensorInfo& t) const {

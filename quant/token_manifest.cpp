@@ -60,8 +60,12 @@ ManifestEntry parse_manifest_line(const std::string& line, const std::string& wh
 
 std::vector<ManifestEntry> read_manifest(const std::string& path, std::vector<std::string>* bad) {
   std::ifstream in(path);
+  if (!in) return {};
+  return read_manifest(in, path, bad);
+}
+
+std::vector<ManifestEntry> read_manifest(std::istream& in, const std::string& path, std::vector<std::string>* bad) {
   std::vector<ManifestEntry> out;
-  if (!in) return out;
   std::string line;
   int n = 0;
   while (std::getline(in, line)) {

@@ -4,6 +4,7 @@
 // "tokens" is relative to the manifest's folder and may not leave it.
 #pragma once
 #include <cstdint>
+#include <istream>
 #include <string>
 #include <vector>
 
@@ -31,6 +32,9 @@ ManifestEntry parse_manifest_line(const std::string& line, const std::string& wh
 // an edited file may hold more) are skipped and their messages, each naming the file and
 // line, appended to *bad; nullptr makes them errors instead.
 std::vector<ManifestEntry> read_manifest(const std::string& path, std::vector<std::string>* bad = nullptr);
+// The same over a stream; `path` names it in messages.
+std::vector<ManifestEntry> read_manifest(std::istream& in, const std::string& path,
+                                         std::vector<std::string>* bad = nullptr);
 
 // True when `relative` stays inside its folder (no absolute path, no ".." component).
 bool stays_inside(const std::string& relative);

@@ -8,6 +8,7 @@
 #include "audio/error.h"
 #include "audio/log_mel.h"
 #include "quant/checkpoint.h"
+#include "quant/safetensors.h"
 #include "synthetic_speech.h"
 
 using namespace tessera;
@@ -86,4 +87,39 @@ TEST_CASE("damaged or foreign model files are refused with the file's name") {
   CHECK(message(foreign).find("not a tessera model") != std::string::npos);
   CHECK(message("").find("bad.safetensors") != std::string::npos);
   fs::remove_all(dir);
+}
+
+// A model file is untrusted: its stored config must not make the loader allocate more than
+// the file could hold. (Before the check, 600 bytes naming a 4096-channel model asked for
+// over 100 GB: fuzz_model stopped with out-of-memory on the hand-made input
+// tests/fuzz/regressions/model/huge_config.safetensors.)
+TEST_CASE("a small file whose stored config names a huge model is refused before allocating") {
+  ExperimentConfig big = load_experiment("", {"model.channels=4096", "model.latent_dim=4096", "model.strides=[2, 2, 2, 2, 2, 2]",
+                                              "model.residual_kernel=63", "codebooks.restart_pool=1000000",
+                                              "train.segment_frames=640"});
+  SafetensorsWriter w;
+  w.set_metadata("format", kModelFormat);
+  w.set_metadata("format_version", std::to_string(kModelFormatVersion));
+  w.set_metadata("config", resolved_yaml(big));
+  const fs::path p = fs::temp_directory_path() / ("tessera-ckpt-huge-" + std::to_string(::getpid()) + ".safetensors");
+  w.write(p.string());
+  std::string msg = "no error";
+  try { load_model(p.string(), 1); } catch (const Error& e) { msg = e.what(); }
+  CHECK(msg.find("describes a model of at least") != std::string::npos);
+  CHECK(msg.find("holds 0 bytes of tensors") != std::string::npos);
+  // Through the in-memory reader (what fuzz_model feeds), the same refusal.
+  const SafetensorsReader r("mem.safetensors", read_bytes(p));
+  CHECK_THROWS_AS(load_model(r, 1), Error);
+  fs::remove(p);
+}
+
+TEST_CASE("a model's minimum size check accepts every real model (the smallest and the default)") {
+  for (const ExperimentConfig& cfg : {small(), load_experiment("", {})}) {
+    Tokenizer a(cfg, 1);
+    a.init(3);
+    const fs::path p = fs::temp_directory_path() / ("tessera-ckpt-min-" + std::to_string(::getpid()) + ".safetensors");
+    save_model(a, p.string(), 0);
+    CHECK_NOTHROW(load_model(p.string(), 1));
+    fs::remove(p);
+  }
 }

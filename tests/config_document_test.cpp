@@ -80,3 +80,11 @@ TEST_CASE("the resolved settings round-trip through YAML") {
   CHECK(b.inversion == audio::Inversion::nnls);
   CHECK(b.log_floor == a.log_floor);
 }
+
+// Found by fuzz_config (tests/fuzz/regressions/config/): YAML allows a mapping or a list as
+// a key ("? key: value" is an explicit complex key, YAML 1.2 spec section 8.2.2); yaml-cpp
+// then threw its own conversion exception, which escaped as an uncaught exception.
+TEST_CASE("a mapping or a list used as a key is refused with its line") {
+  CHECK(error_of("audio:\n  sample_rate: 8000\n? n_mels: 64\n") == "exp.yaml:3: expected a plain key, got a mapping");
+  CHECK(error_of("audio:\n  ? [n_fft, 2]\n  : 512\n") == "exp.yaml:2: expected a plain key, got a list");
+}

@@ -54,7 +54,7 @@ int draw_depth(const CodebookConfig& cfg, std::mt19937_64& rng) {
 
 ResidualCodebooks::ResidualCodebooks(const CodebookConfig& cfg, int max_vectors)
     : cfg_((validate(cfg), cfg)), rng_(cfg.seed), search_(cfg.threads) {
-  const std::size_t S = cfg_.stages, K = cfg_.codes, D = cfg_.dim, P = cfg_.restart_pool;
+  const std::size_t S = cfg_.stages, K = cfg_.codes, D = cfg_.dim;
   codebook_.resize(S * K * D);
   std::normal_distribution<float> gauss(0.0f, 1.0f);
   for (float& v : codebook_) v = gauss(rng_);
@@ -63,13 +63,12 @@ ResidualCodebooks::ResidualCodebooks(const CodebookConfig& cfg, int max_vectors)
   embed_sum_.resize(S * K * D);
   reset_ema();
   since_used_.assign(S * K, 0);
-  ring_.assign(S * P * D, 0.0f);
   ring_state_.assign(2 * S, 0);
   c_sq_.resize(Eigen::Index(S * K));
   counts_.assign(S * K, 0.0f);
   sums_.assign(S * K * D, 0.0f);
   stage_mse_.assign(S, 0.0);
-  perm_.resize(P);
+  perm_.resize(std::size_t(cfg_.restart_pool));
   usage_ = UsageStats(cfg_.stages, cfg_.codes);
   restarts_.assign(S, 0);
   ensure_capacity(std::max(max_vectors, 1));
@@ -267,13 +266,25 @@ void ResidualCodebooks::ema_update(int s) {
   refresh_norms(s);
 }
 
+// The restart pool serves training only, so it is allocated on first use: loading a model for
+// inference never pays for it (and an untrusted model file's config cannot make a load
+// allocate S x P x D floats it never needs).
+std::span<float> ResidualCodebooks::restart_pool() {
+  if (ring_.empty()) ring_.assign(std::size_t(cfg_.stages) * cfg_.restart_pool * cfg_.dim, 0.0f);
+  return ring_;
+}
+
+float* ResidualCodebooks::ring(int s) {
+  return restart_pool().data() + std::size_t(s) * cfg_.restart_pool * cfg_.dim;
+}
+
 // Keeps cfg.restart_pool_per_step random columns of this stage's input residual r_s.
 // Called before r is advanced to r_{s+1}.
 void ResidualCodebooks::push_recent(int s, Eigen::Index n) {
   const int P = cfg_.restart_pool, D = cfg_.dim;
   std::int64_t& fill = ring_state_[s];
   std::int64_t& next = ring_state_[cfg_.stages + s];
-  Eigen::Map<Eigen::MatrixXf> pool(ring_.data() + std::size_t(s) * P * D, D, P);
+  Eigen::Map<Eigen::MatrixXf> pool(ring(s), D, P);
   std::uniform_int_distribution<Eigen::Index> pick(0, n - 1);
   const Eigen::Index m = std::min<Eigen::Index>(n, cfg_.restart_pool_per_step);
   for (Eigen::Index i = 0; i < m; ++i) {
@@ -286,13 +297,13 @@ void ResidualCodebooks::push_recent(int s, Eigen::Index n) {
 // A code unused for dead_after_steps train steps of its stage takes a recent residual of the
 // stage (distinct draws from the pool) and restarts its EMA statistics as a fresh code.
 void ResidualCodebooks::restart_dead(int depth) {
-  const int M = cfg_.dead_after_steps, K = cfg_.codes, D = cfg_.dim, P = cfg_.restart_pool;
+  const int M = cfg_.dead_after_steps, K = cfg_.codes, D = cfg_.dim;
   if (M == 0) return;
   for (int s = 0; s < depth; ++s) {
     std::int32_t* since = since_used_.data() + std::size_t(s) * K;
     const int fill = int(ring_state_[s]);
     if (fill == 0) continue;
-    Eigen::Map<const Eigen::MatrixXf> pool(ring_.data() + std::size_t(s) * P * D, D, fill);
+    Eigen::Map<const Eigen::MatrixXf> pool(ring(s), D, fill);
     auto c = stage_mut(s);
     Eigen::Map<Eigen::MatrixXf> es(embed_sum_.data() + std::size_t(s) * K * D, D, K);
     float* cs = cluster_size_.data() + std::size_t(s) * K;
@@ -330,7 +341,7 @@ void ResidualCodebooks::fill_pool(int s, const Eigen::Ref<const Eigen::MatrixXf>
   std::vector<int> order(n);
   std::iota(order.begin(), order.end(), 0);
   for (int i = 0; i < m; ++i) std::swap(order[i], order[std::uniform_int_distribution<int>(i, n - 1)(rng_)]);
-  Eigen::Map<Eigen::MatrixXf> pool(ring_.data() + std::size_t(s) * P * D, D, P);
+  Eigen::Map<Eigen::MatrixXf> pool(ring(s), D, P);
   for (int i = 0; i < m; ++i) pool.col(i) = r.col(order[i]);
   ring_state_[s] = m;
   ring_state_[cfg_.stages + s] = m % P;

@@ -107,7 +107,7 @@ class ResidualCodebooks {
   std::span<float> ema_cluster_size() { return cluster_size_; }         // S x K
   std::span<float> ema_embed_sum() { return embed_sum_; }               // S x K x D
   std::span<std::int32_t> steps_since_used() { return since_used_; }    // S x K
-  std::span<float> restart_pool() { return ring_; }                     // S x P x D
+  std::span<float> restart_pool();                                      // S x P x D (allocated on first use)
   std::span<std::int64_t> restart_pool_state() { return ring_state_; }  // fill[S], next[S]
   std::mt19937_64& rng() { return rng_; }  // restarts and subsampling draw from it
   // cluster_size ← 1 and embed_sum ← codebook for every stage (after setting codebooks by hand).
@@ -138,6 +138,7 @@ class ResidualCodebooks {
   FloatBuffer cluster_size_;                   // S x K, EMA
   FloatBuffer embed_sum_;                      // S x K x D, EMA
   std::vector<std::int32_t> since_used_;       // S x K, train steps of the stage since last use
+  float* ring(int s);                          // stage s's part of the restart pool
   FloatBuffer ring_;                           // S x P x D recent residuals of each stage
   std::vector<std::int64_t> ring_state_;       // fill per stage, then next slot per stage
   Eigen::VectorXf c_sq_;                       // S·K cached ‖c‖²

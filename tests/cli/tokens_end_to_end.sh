@@ -16,6 +16,10 @@ n=$(find "$work/tok" -name '*.npy' | wc -l)
 [ "$n" -eq 4 ] || fail "expected 4 token files, got $n"
 [ "$(wc -l <"$work/tok/manifest.jsonl")" -eq 4 ] || fail "manifest should have 4 lines"
 [ "$(wc -l <"$work/flat.txt")" -eq 4 ] || fail "flat file should have 4 lines"
+# The demo's layout: --flat inside an --out folder that does not exist yet.
+"$bin" encode --model "$model" "$work/corpus" --out "$work/tok-new" --flat "$work/tok-new/flat.txt" >/dev/null \
+  || fail "encode with --flat inside a new --out folder"
+cmp -s "$work/flat.txt" "$work/tok-new/flat.txt" || fail "flat file inside --out differs"
 /usr/bin/python3 - "$work" <<'PY' || fail "token files or manifest do not match (numpy check)"
 import json, sys, numpy as np
 w = sys.argv[1]

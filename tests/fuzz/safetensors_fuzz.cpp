@@ -1,0 +1,7 @@
+// safetensors_fuzz.cpp — libFuzzer target: tessera::fuzz::check_safetensors (tests/fuzz/fuzz_checks.h).
+#include "tests/fuzz/fuzz_checks.h"
+
+extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
+  tessera::fuzz::check_safetensors(tessera::fuzz::as_bytes(data, size));
+  return 0;
+}
