@@ -27,7 +27,13 @@ rss_kb=$(tail -1 "$work/rss")
 # The samples alone, held as floats, take 20·60·16000·4 B = 77 MB (the whole-file path
 # peaked at ~240 MB here); streamed, the tiny model needs ~15 MB. 64 MB leaves room for
 # other allocators and more cores (one chunk's activations per lane).
-[ "$rss_kb" -lt 65536 ] || fail "peak resident set ${rss_kb} KB while encoding 20 minutes (bound 64 MB)"
+# Under AddressSanitizer (TESSERA_SANITIZED, set by tests/CMakeLists.txt) shadow memory and
+# the quarantine of freed blocks inflate every peak, so the bound is checked in normal builds only.
+if [ -n "${TESSERA_SANITIZED:-}" ]; then
+  echo "note: sanitized build, memory bound not checked (peak ${rss_kb} KB)"
+else
+  [ "$rss_kb" -lt 65536 ] || fail "peak resident set ${rss_kb} KB while encoding 20 minutes (bound 64 MB)"
+fi
 
 /usr/bin/python3 - "$work/tok" <<'PY' || fail "token file of the long input is wrong (numpy check)"
 import json, sys, numpy as np
