@@ -225,10 +225,9 @@ int run_encode(const EncodeArgs& a) {
   if (flat && failed.empty()) flat->commit();
   const std::size_t encoded = files.size() - skipped - failed.size();
   const bool nothing = fresh_out && encoded == 0 && skipped == 0;
-  if (nothing) {   // leave no empty output folder behind
-    fs::remove(manifest, ec);
-    fs::remove(a.out, ec);   // only if empty
-  }
+  // Leave no empty output folder behind: the manifest goes here, the folder with the lock
+  // that made it (FolderLock removes a folder it created once it is empty).
+  if (nothing) fs::remove(manifest, ec);
   std::printf("encoded   %zu files (%zu already done) at depth %d -> %s\n", encoded, skipped, depth, a.out.c_str());
   if (!nothing) std::printf("manifest  %s\n", manifest.c_str());
   if (!failed.empty())
