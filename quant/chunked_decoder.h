@@ -21,7 +21,7 @@ class Tokenizer;
 class ChunkedDecoder {
  public:
   using Sink = std::function<void(const Eigen::Ref<const Eigen::MatrixXf>& log_mel)>;
-  static constexpr int kDefaultChunk = 1024;
+  static constexpr int kDefaultChunk = 256;
 
   // Throws tessera::Error for depth outside 1..stages or chunk < 1. `tok` must outlive this.
   ChunkedDecoder(Tokenizer& tok, int depth, Sink sink, int chunk = kDefaultChunk);

@@ -81,7 +81,9 @@ void ChunkedEncoder::run_ready(bool final) {
       if (!final && b > seen_) break;
       ++count;
     }
-    if (count == 0) return;
+    // Before the end, wait for a full round: a lone chunk would leave the other lanes
+    // idle, and the window has room for the whole round (its size is set for lanes_ chunks).
+    if (count == 0 || (!final && count < lanes_)) return;
     tok_.pool().run([&](int l) {
       if (l >= count) return;
       const int lo = int(next_ + l) * N_, hi = std::min(lo + N_, Tz);
