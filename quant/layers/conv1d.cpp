@@ -96,7 +96,11 @@ void conv_forward(const Conv1dShape& s, const SeqView& y, const CSeqView& x, con
       const int n = std::min(block, y.T - t0), u0 = t0 * s.stride - s.pad_left;
       MapMat Y = frames(y, bi, t0, co, n);
       if (!accumulate) Y.colwise() = bias;
-      if (one_gemm) {
+      if (panel_gemm::available()) {  // all taps in one pass over Y
+        const long fs = x.tstride * x.C;
+        panel_gemm::add_product(Y.data(), Y.outerStride(), {wp, long(k) * ci, ci, 1, co, ci, k},
+                                {x.frame(bi, u0), s.stride * fs, s.dilation * fs}, n);
+      } else if (one_gemm) {
         const CMapRowMat W(wp, co, long(k) * ci, Stride(long(k) * ci));
         add_product(Y, W, frames(x, bi, u0, long(k) * ci, n, s.stride));
       } else {
@@ -127,18 +131,16 @@ void conv_backward(const Conv1dShape& s, const SeqView* dx, const CSeqView& dy, 
       add_column_sum(db, dY);
       if (one_gemm) {
         MapRowMat dW(dwp, co, long(k) * ci, Stride(long(k) * ci));
-        dW.noalias() += dY * frames(x, bi, u0, long(k) * ci, n, s.stride).transpose();
+        add_dyxt(dW, dY, frames(x, bi, u0, long(k) * ci, n, s.stride));
       } else {
         for (int j = 0; j < k; ++j) {
-          MapRowMat dWj = tap(dwp, co, k, ci, j);
-          dWj.noalias() += dY * frames(x, bi, u0 + j * s.dilation, ci, n, s.stride).transpose();
+          add_dyxt(tap(dwp, co, k, ci, j), dY, frames(x, bi, u0 + j * s.dilation, ci, n, s.stride));
         }
       }
       if (dx) {
         // The transpose of each tap's product: dx[s·t + d·j − pad_left] += w_jᵀ dy[t].
         for (int j = 0; j < k; ++j) {
-          MapMat dX = frames(*dx, bi, u0 + j * s.dilation, ci, n, s.stride);
-          dX.noalias() += tap(wp, co, k, ci, j).transpose() * dY;
+          add_wtx(frames(*dx, bi, u0 + j * s.dilation, ci, n, s.stride), tap(wp, co, k, ci, j), dY);
         }
       }
     }

@@ -90,7 +90,7 @@ void ConvTranspose1d::forward(const SeqView& y, const CSeqView& x, const ParamVi
       MapMat P = phase_matrix(co, long(n) * B);
       P.colwise() = bias;
       for_each_tap(s, y.T, [&](int rr, int j, int q, int nn) {
-        if (rr == r) add_product(P, tap(wp, co, k, ci, j), CMapMat(x.frame(0, q), ci, long(nn) * B, Stride(ci)));
+        if (rr == r) add_wx(P, tap(wp, co, k, ci, j), CMapMat(x.frame(0, q), ci, long(nn) * B, Stride(ci)));
       });
       for (int m = 0; m < n; ++m) std::copy_n(P.data() + m * run, run, y.frame(0, st * m + r));
     }
@@ -100,7 +100,7 @@ void ConvTranspose1d::forward(const SeqView& y, const CSeqView& x, const ParamVi
     frames(y, bi, 0, co, y.T).colwise() = bias;
     for_each_tap(s, y.T, [&](int r, int j, int q, int n) {
       MapMat Y = frames(y, bi, r, co, n, st);
-      add_product(Y, tap(wp, co, k, ci, j), frames(x, bi, q, ci, n));
+      add_wx(Y, tap(wp, co, k, ci, j), frames(x, bi, q, ci, n));
     });
   }
 }
@@ -123,13 +123,9 @@ void ConvTranspose1d::backward(const SeqView* dx, const CSeqView& dy, const CSeq
       for (int m = 0; m < n; ++m) std::copy_n(dy.frame(0, st * m + r), run, G.data() + m * run);
       for_each_tap(s, dy.T, [&](int rr, int j, int q, int nn) {
         if (rr != r) return;
-        const CMapMat X(x.frame(0, q), ci, long(nn) * B, Stride(ci));
-        MapRowMat dWj = tap(dwp, co, k, ci, j);
-        dWj.noalias() += G * X.transpose();
-        if (dx) {
-          MapMat dX(dx->frame(0, q), ci, long(nn) * B, Stride(ci));
-          dX.noalias() += tap(wp, co, k, ci, j).transpose() * G;
-        }
+        const CMapMat X(x.frame(0, q), ci, long(nn) * B, Stride(ci)), cG(G.data(), co, G.cols(), Stride(co));
+        add_dyxt(tap(dwp, co, k, ci, j), cG, X);
+        if (dx) add_wtx(MapMat(dx->frame(0, q), ci, long(nn) * B, Stride(ci)), tap(wp, co, k, ci, j), cG);
       });
     }
     return;
@@ -138,12 +134,8 @@ void ConvTranspose1d::backward(const SeqView* dx, const CSeqView& dy, const CSeq
     add_column_sum(db, frames(dy, bi, 0, co, dy.T));
     for_each_tap(s, dy.T, [&](int r, int j, int q, int n) {
       const CMapMat dY = frames(dy, bi, r, co, n, st);
-      MapRowMat dWj = tap(dwp, co, k, ci, j);
-      dWj.noalias() += dY * frames(x, bi, q, ci, n).transpose();
-      if (dx) {
-        MapMat dX = frames(*dx, bi, q, ci, n);
-        dX.noalias() += tap(wp, co, k, ci, j).transpose() * dY;
-      }
+      add_dyxt(tap(dwp, co, k, ci, j), dY, frames(x, bi, q, ci, n));
+      if (dx) add_wtx(frames(*dx, bi, q, ci, n), tap(wp, co, k, ci, j), dY);
     });
   }
 }

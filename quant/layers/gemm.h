@@ -6,6 +6,7 @@
 #include <algorithm>
 #include <cassert>
 
+#include "quant/layers/panel_gemm.h"
 #include "quant/tensor.h"
 
 namespace tessera::quant::gemm {
@@ -52,6 +53,33 @@ void add_product(Y&& y, const W& w, const X& x) {
     const Eigen::Index cn = std::min(kInner, w.cols() - c0);
     y.noalias() += w.middleCols(c0, cn) * x.middleRows(c0, cn);
   }
+}
+
+// The three products of the convolutions. With AVX-512 they run on panel_gemm (about
+// 1.2x Eigen's speed on these shapes; see panel_gemm.h), else on Eigen.
+// y += w · x (w: a row-major weight block, x: frames).
+inline void add_wx(MapMat y, const CMapRowMat& w, const CMapMat& x) {
+  if (!panel_gemm::available()) return add_product(y, w, x);
+  panel_gemm::add_product(y.data(), y.outerStride(), {w.data(), w.outerStride(), 0, 1, int(w.rows()), int(w.cols()), 1},
+                          {x.data(), x.outerStride()}, int(x.cols()));
+}
+// y += wᵀ · x (the input gradient of y = w · x).
+inline void add_wtx(MapMat y, const CMapRowMat& w, const CMapMat& x) {
+  if (!panel_gemm::available()) {
+    y.noalias() += w.transpose() * x;
+    return;
+  }
+  panel_gemm::add_product(y.data(), y.outerStride(), {w.data(), 1, 0, w.outerStride(), int(w.cols()), int(w.rows()), 1},
+                          {x.data(), x.outerStride()}, int(x.cols()));
+}
+// dw += dy · xᵀ (the weight gradient of dy = w · x), computed as dwᵀ += x · dyᵀ.
+inline void add_dyxt(MapRowMat dw, const CMapMat& dy, const CMapMat& x) {
+  if (!panel_gemm::available()) {
+    dw.noalias() += dy * x.transpose();
+    return;
+  }
+  panel_gemm::add_product(dw.data(), dw.outerStride(), {x.data(), 1, 0, x.outerStride(), int(x.rows()), int(x.cols()), 1},
+                          {dy.data(), 1, 0, dy.outerStride()}, int(dy.rows()));
 }
 
 // db += Σ_t dY(:, t), summed column by column: the order of every element's sum is then
