@@ -57,13 +57,17 @@ void pack_strip(const Weights& w, const Frames& f, int n0, int nn) {
   const int K = w.taps * w.depth;
   if (packed_x.size() < std::size_t(K) * NR) packed_x.resize(std::size_t(K) * NR);
   float* out = packed_x.data();
-  if (f.depth_step == 1) {  // columns are contiguous runs of depth: read them one by one
-    for (int n = 0; n < nn; ++n) {
-      const float* col = f.x + long(n0 + n) * f.col_step;
-      for (int j = 0; j < w.taps; ++j) {
-        const float* src = col + long(j) * f.tap_step;
-        float* dst = out + std::size_t(j) * w.depth * NR + n;
-        for (int d = 0; d < w.depth; ++d) dst[std::size_t(d) * NR] = src[d];
+  if (f.depth_step == 1) {  // columns are contiguous runs of depth: 12 read streams, one write stream
+    const float* src[NR];
+    for (int j = 0; j < w.taps; ++j) {
+      for (int n = 0; n < nn; ++n) src[n] = f.x + long(n0 + n) * f.col_step + long(j) * f.tap_step;
+      float* dst = out + std::size_t(j) * w.depth * NR;
+      if (nn == NR) {
+        for (int d = 0; d < w.depth; ++d, dst += NR)
+          for (int n = 0; n < NR; ++n) dst[n] = src[n][d];
+      } else {
+        for (int d = 0; d < w.depth; ++d, dst += NR)
+          for (int n = 0; n < nn; ++n) dst[n] = src[n][d];
       }
     }
   } else {  // depth is the far axis (x·dyᵀ): read across the strip's columns, row by row
