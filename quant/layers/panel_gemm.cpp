@@ -28,9 +28,8 @@ namespace {
 
 constexpr int MR = 32, NR = 12;
 
-// Per thread: W packed as [panel][k][MR] (rows past R are zeros), and one strip of x
-// packed as [k][NR] (columns past N are zeros).
-thread_local FloatBuffer packed_w, packed_x;
+// Per thread: W packed as [panel][k][MR] (rows past R are zeros).
+thread_local FloatBuffer packed_w;
 
 void pack_weights(const Weights& w, int K) {
   const int panels = (w.rows + MR - 1) / MR;
@@ -52,51 +51,43 @@ void pack_weights(const Weights& w, int K) {
   }
 }
 
-// Strip of columns n0..n0+nn of x (all taps and depth) as [k][NR].
-void pack_strip(const Weights& w, const Frames& f, int n0, int nn) {
-  const int K = w.taps * w.depth;
-  if (packed_x.size() < std::size_t(K) * NR) packed_x.resize(std::size_t(K) * NR);
-  float* out = packed_x.data();
-  if (f.depth_step == 1) {  // columns are contiguous runs of depth: 12 read streams, one write stream
-    const float* src[NR];
-    for (int j = 0; j < w.taps; ++j) {
-      for (int n = 0; n < nn; ++n) src[n] = f.x + long(n0 + n) * f.col_step + long(j) * f.tap_step;
-      float* dst = out + std::size_t(j) * w.depth * NR;
-      if (nn == NR) {
-        for (int d = 0; d < w.depth; ++d, dst += NR)
-          for (int n = 0; n < NR; ++n) dst[n] = src[n][d];
-      } else {
-        for (int d = 0; d < w.depth; ++d, dst += NR)
-          for (int n = 0; n < nn; ++n) dst[n] = src[n][d];
-      }
-    }
-  } else {  // depth is the far axis (x·dyᵀ): read across the strip's columns, row by row
-    for (int j = 0; j < w.taps; ++j)
-      for (int d = 0; d < w.depth; ++d) {
-        const float* src = f.x + long(n0) * f.col_step + long(j) * f.tap_step + long(d) * f.depth_step;
-        float* dst = out + (std::size_t(j) * w.depth + d) * NR;
-        for (int n = 0; n < nn; ++n) dst[n] = src[long(n) * f.col_step];
-      }
-  }
-  if (nn < NR)
-    for (int k = 0; k < K; ++k) std::fill(out + std::size_t(k) * NR + nn, out + std::size_t(k + 1) * NR, 0.0f);
-}
-
-// y[r + n·ldy] (r < 32 within the masks, n < nn) += Σ_k a[k][r] · b[k][n].
-template <int NN>
-TESSERA_AVX512 void micro_kernel(const float* a, const float* b, int K, float* y, long ldy, __mmask16 m0, __mmask16 m1) {
+// y[r + n·ldy] (r < 32 within the masks, n < NN) += Σ_j Σ_d a[j][d][r] · b_j(d, n), read
+// straight from the frames (no packing): in column mode (kRows false) b_j(d, n) =
+// x[j·tap_step + n·step + d], depth contiguous, the columns `step` apart, addressed from
+// four base pointers as p[0], p[step], p[2·step] (x86 scales 4 and 8 of one index
+// register); in row mode b_j(d, n) = x[j·tap_step + d·step + n], a strip's 12 columns
+// side by side. One fused multiply-add chain per element, from y's old value, in the
+// order of j then d.
+template <int NN, bool kRows>
+TESSERA_AVX512 void micro_kernel(const float* a, int depth, int taps, const float* x, long step, long tap_step,
+                                 float* y, long ldy, __mmask16 m0, __mmask16 m1) {
   __m512 c0[NN], c1[NN];
   for (int n = 0; n < NN; ++n) {
     c0[n] = _mm512_maskz_loadu_ps(m0, y + n * ldy);
     c1[n] = _mm512_maskz_loadu_ps(m1, y + n * ldy + 16);
   }
-  for (int k = 0; k < K; ++k, a += MR, b += NR) {
-    // Unaligned loads: FloatBuffer is 16-byte aligned in portable builds (same speed when aligned).
-    const __m512 a0 = _mm512_loadu_ps(a), a1 = _mm512_loadu_ps(a + 16);
-    for (int n = 0; n < NN; ++n) {
-      const __m512 bn = _mm512_set1_ps(b[n]);
-      c0[n] = _mm512_fmadd_ps(a0, bn, c0[n]);
-      c1[n] = _mm512_fmadd_ps(a1, bn, c1[n]);
+  for (int j = 0; j < taps; ++j) {
+    const float* xb = x + j * tap_step;
+    if constexpr (kRows) {
+      for (int d = 0; d < depth; ++d, a += MR, xb += step) {
+        // Unaligned loads: FloatBuffer is 16-byte aligned in portable builds (same speed when aligned).
+        const __m512 a0 = _mm512_loadu_ps(a), a1 = _mm512_loadu_ps(a + 16);
+        for (int n = 0; n < NN; ++n) {
+          const __m512 bn = _mm512_set1_ps(xb[n]);
+          c0[n] = _mm512_fmadd_ps(a0, bn, c0[n]);
+          c1[n] = _mm512_fmadd_ps(a1, bn, c1[n]);
+        }
+      }
+    } else {
+      const float* p[4] = {xb, xb + 3 * step, xb + 6 * step, xb + 9 * step};
+      for (int d = 0; d < depth; ++d, a += MR) {
+        const __m512 a0 = _mm512_loadu_ps(a), a1 = _mm512_loadu_ps(a + 16);
+        for (int n = 0; n < NN; ++n) {
+          const __m512 bn = _mm512_set1_ps(p[n / 3][(n % 3) * step + d]);
+          c0[n] = _mm512_fmadd_ps(a0, bn, c0[n]);
+          c1[n] = _mm512_fmadd_ps(a1, bn, c1[n]);
+        }
+      }
     }
   }
   for (int n = 0; n < NN; ++n) {
@@ -105,12 +96,13 @@ TESSERA_AVX512 void micro_kernel(const float* a, const float* b, int K, float* y
   }
 }
 
-using Kernel = void (*)(const float*, const float*, int, float*, long, __mmask16, __mmask16);
-template <int... I>
+using Kernel = void (*)(const float*, int, int, const float*, long, long, float*, long, __mmask16, __mmask16);
+template <bool kRows, int... I>
 constexpr auto kernel_table(std::integer_sequence<int, I...>) {
-  return std::array<Kernel, sizeof...(I)>{&micro_kernel<I + 1>...};
+  return std::array<Kernel, sizeof...(I)>{&micro_kernel<I + 1, kRows>...};
 }
-constexpr auto kKernels = kernel_table(std::make_integer_sequence<int, NR>{});
+constexpr auto kColumnKernels = kernel_table<false>(std::make_integer_sequence<int, NR>{});
+constexpr auto kRowKernels = kernel_table<true>(std::make_integer_sequence<int, NR>{});
 
 __mmask16 row_mask(int rows) { return rows >= 16 ? __mmask16(0xFFFF) : __mmask16((1u << std::max(rows, 0)) - 1); }
 
@@ -132,16 +124,19 @@ void add_product(float* y, long ldy, const Weights& w, const Frames& x, int cols
   if (cols <= 0 || w.rows <= 0) return;
   const int K = w.taps * w.depth;
   if (K == 0) return;
+  assert(x.depth_step == 1 || x.col_step == 1);
+  const bool rows_mode = x.depth_step != 1;
   pack_weights(w, K);
   const int panels = (w.rows + MR - 1) / MR;
   for (int n0 = 0; n0 < cols; n0 += NR) {
     const int nn = std::min(NR, cols - n0);
-    pack_strip(w, x, n0, nn);
-    const Kernel kern = kKernels[std::size_t(nn - 1)];
+    const Kernel kern = (rows_mode ? kRowKernels : kColumnKernels)[std::size_t(nn - 1)];
+    const float* strip = x.x + long(n0) * x.col_step;
+    const long step = rows_mode ? x.depth_step : x.col_step;
     for (int p = 0; p < panels; ++p) {
       const int rn = std::min(MR, w.rows - p * MR);
-      kern(packed_w.data() + std::size_t(p) * K * MR, packed_x.data(), K, y + long(n0) * ldy + p * MR, ldy,
-           row_mask(rn), row_mask(rn - 16));
+      kern(packed_w.data() + std::size_t(p) * K * MR, w.depth, w.taps, strip, step, x.tap_step,
+           y + long(n0) * ldy + p * MR, ldy, row_mask(rn), row_mask(rn - 16));
     }
   }
 }

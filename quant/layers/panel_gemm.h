@@ -4,8 +4,9 @@
 //
 // Why not Eigen here: Eigen 3.4's AVX-512 kernel holds a 48 x 4 block of y in 12
 // registers and packs both operands on every call; this one holds 32 x 12 in 24 registers,
-// packs W once per call and a 12-column strip of x once for all row panels (GotoBLAS
-// layering, Goto & van de Geijn 2008, "Anatomy of high-performance matrix multiplication").
+// packs W once per call into 32-row panels (GotoBLAS layering, Goto & van de Geijn 2008,
+// "Anatomy of high-performance matrix multiplication") and reads the frames in place,
+// broadcasting each value of a 12-column strip to the 24 accumulators.
 // Each element of y is one chain of fused multiply-adds, started from y's old value, over
 // the taps and depth in order: its rounding does not depend on how the rows and columns
 // are split, so results stay the same whatever the chunk or thread count.
@@ -36,7 +37,8 @@ struct Frames {
   long col_step, tap_step = 0, depth_step = 1;
 };
 
-// y(:, n) += Σ_j W_j · x_j(:, n) for n < cols. Allocation-free after the first call of a
+// y(:, n) += Σ_j W_j · x_j(:, n) for n < cols. The frames must have depth_step 1 (depth
+// contiguous: forward, input gradient) or col_step 1 (columns contiguous: weight gradient). Allocation-free after the first call of a
 // given size on a thread (per-thread packing buffers).
 void add_product(float* y, long ldy, const Weights& w, const Frames& x, int cols);
 
