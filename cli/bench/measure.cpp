@@ -56,7 +56,9 @@ OtherLoad::OtherLoad() : busy0_(machine_busy_ms()), cpu0_(process_cpu_ms()), wal
 double OtherLoad::fraction() const {
   const double busy = machine_busy_ms() - busy0_, mine = process_cpu_ms() - cpu0_, wall = now_ms() - wall0_;
   if (busy0_ < 0 || wall <= 0) return -1;
-  return std::max(0.0, busy - mine) / (wall * double(sysconf(_SC_NPROCESSORS_ONLN)));
+  // /proc/stat counts in 10 ms ticks: over a window of a few ms the difference can pass
+  // the whole machine, so the fraction is clamped to what it can mean.
+  return std::clamp((busy - mine) / (wall * double(sysconf(_SC_NPROCESSORS_ONLN))), 0.0, 1.0);
 }
 
 std::vector<int> parse_thread_list(const std::string& s) {
