@@ -17,12 +17,21 @@ int resolve_threads(int threads) {
   return hw ? int(hw) : 1;
 }
 
+namespace {
+// The caller's thread count also runs the code search (a loaded model's stored
+// train.threads, up to 1024, describes the machine it was trained on, not this one).
+CodebookConfig searching_with(CodebookConfig c, int threads) {
+  c.threads = threads;
+  return c;
+}
+}  // namespace
+
 Tokenizer::Tokenizer(const ExperimentConfig& cfg, int threads, int max_batch_vectors)
     : cfg_(cfg),
       pool_(resolve_threads(threads)),
       enc_(cfg.model, slab_, pool_),
       dec_(cfg.model, slab_, pool_),
-      rvq_(cfg.codebooks, max_batch_vectors) {
+      rvq_(searching_with(cfg.codebooks, pool_.size()), max_batch_vectors) {
   stats_.mean = Eigen::VectorXf::Zero(cfg.model.n_mels);
   stats_.std = Eigen::VectorXf::Ones(cfg.model.n_mels);
 }

@@ -2,6 +2,8 @@
 #include "quant/trainer.h"
 
 #include <chrono>
+#include <cstdio>
+#include <cstdlib>
 #include <cmath>
 #include <filesystem>
 #include <fstream>
@@ -33,6 +35,29 @@ void rng_from_text(std::mt19937_64& rng, const std::string& text, const std::str
   std::istringstream s(text);
   s >> rng;
   if (s.fail()) throw Error(origin + ": damaged random-generator state");
+}
+
+// The running sums of a metrics window as text, exactly: hexadecimal floats round-trip
+// every bit of a double.
+std::string window_text(double loss, double recon, double commitment, std::int64_t steps) {
+  char buf[160];
+  std::snprintf(buf, sizeof buf, "%a %a %a %lld", loss, recon, commitment, static_cast<long long>(steps));
+  return buf;
+}
+
+void window_from_text(const std::string& text, double& loss, double& recon, double& commitment, std::int64_t& steps,
+                      const std::string& origin) {
+  const char* p = text.c_str();
+  char* end = nullptr;
+  double* sums[] = {&loss, &recon, &commitment};
+  for (double* v : sums) {
+    *v = std::strtod(p, &end);
+    if (end == p || !std::isfinite(*v)) throw Error(origin + ": damaged metrics window '" + text + "'");
+    p = end;
+  }
+  const long long n = std::strtoll(p, &end, 10);
+  if (end == p || *end != '\0' || n < 0) throw Error(origin + ": damaged metrics window '" + text + "'");
+  steps = n;
 }
 
 // The architecture part of a config (everything but train:), to check a resume.
@@ -161,8 +186,6 @@ void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const 
   const std::int64_t first = step_;
   StepReport r;
   r.total = t.steps;
-  double since_log_recon = 0, since_log_commit = 0, since_log_loss = 0;
-  int since_log = 0;
   while (step_ < t.steps) {
     if (stop && stop->load()) break;
     draw_batch();
@@ -175,7 +198,7 @@ void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const 
       throw Error("step " + std::to_string(step_ + 1) + ": " + e.what());
     }
     ++step_;
-    since_log_loss += sr.loss, since_log_recon += sr.recon, since_log_commit += sr.commitment, ++since_log;
+    window_.loss += sr.loss, window_.recon += sr.recon, window_.commitment += sr.commitment, ++window_.steps;
 
     const double elapsed = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     r.step = step_;
@@ -186,13 +209,13 @@ void Trainer::run(const std::atomic<bool>* stop, const std::function<void(const 
     r.eta_s = r.steps_per_s > 0 ? double(t.steps - step_) / r.steps_per_s : 0;
     if (step_ % t.log_every == 0 || step_ == t.steps) {
       StepReport mean = r;
-      mean.loss = since_log_loss / since_log, mean.recon = since_log_recon / since_log;
-      mean.commitment = since_log_commit / since_log;
+      const double n = double(window_.steps);
+      mean.loss = window_.loss / n, mean.recon = window_.recon / n, mean.commitment = window_.commitment / n;
       log_metrics(mean);
       r.codes_used.clear();
       for (int s = 0; s < cfg_.codebooks.stages; ++s) r.codes_used.push_back(tok_->codebooks().usage().stage(s).used);
       tok_->codebooks().reset_usage();
-      since_log_loss = since_log_recon = since_log_commit = 0, since_log = 0;
+      window_ = LogWindow{};
     }
     if (step_ % t.validate_every == 0 || step_ == t.steps) {
       log_validation(validate());
@@ -231,6 +254,10 @@ void Trainer::checkpoint() {
   w.add<float>("restart.pool", {std::int64_t(rvq.restart_pool().size())}, rvq.restart_pool().data());
   w.add<std::int64_t>("restart.state", {std::int64_t(rvq.restart_pool_state().size())},
                       rvq.restart_pool_state().data());
+  UsageStats& usage = rvq.usage();
+  w.add<std::int64_t>("log_window.code_counts", {c.stages, c.codes}, usage.all_counts().data());
+  w.add<std::int64_t>("log_window.vectors", {c.stages}, usage.all_vectors().data());
+  w.set_metadata("log_window", window_text(window_.loss, window_.recon, window_.commitment, window_.steps));
   w.set_metadata("format", kStateFormat);
   w.set_metadata("format_version", std::to_string(kStateVersion));
   w.set_metadata("config", resolved_yaml(cfg_));
@@ -289,6 +316,17 @@ ResumeReport Trainer::resume() {
   step_ = parse_int(r, "step");
   last_val_loss_ = std::stod(r.metadata_at("validation_loss"));
   last_val_l1_ = std::stod(r.metadata_at("validation_mel_l1"));
+  // States written before the log window was saved resume with an empty window: their first
+  // metrics line then averages only the steps after the checkpoint.
+  window_ = LogWindow{};
+  rvq.reset_usage();
+  if (r.metadata().count("log_window")) {
+    window_from_text(r.metadata_at("log_window"), window_.loss, window_.recon, window_.commitment, window_.steps,
+                     state_path());
+    UsageStats& usage = rvq.usage();
+    r.read_into<std::int64_t>("log_window.code_counts", {c.stages, c.codes}, usage.all_counts().data());
+    r.read_into<std::int64_t>("log_window.vectors", {c.stages}, usage.all_vectors().data());
+  }
 
   ResumeReport rep;
   // The model file of this checkpoint is missing or older when a run was killed between

@@ -85,6 +85,12 @@ class Trainer {
   std::int64_t step_ = 0;
   Tensor x_, z_;
   double last_val_loss_ = -1, last_val_l1_ = -1;
+  // Sums over the steps since the last metrics line; saved with a checkpoint (with the
+  // codebooks' usage counts) so that a resumed run logs the same lines as an unbroken one.
+  struct LogWindow {
+    double loss = 0, recon = 0, commitment = 0;
+    std::int64_t steps = 0;
+  } window_;
 };
 
 }  // namespace tessera::quant

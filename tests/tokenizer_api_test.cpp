@@ -73,6 +73,24 @@ TEST_CASE("encoding the same audio twice, or with more threads, gives identical 
   CHECK(a.col(0).maxCoeff() != a.col(0).minCoeff());
 }
 
+TEST_CASE("the caller's thread count runs the code search, not the trained model's train.threads") {
+  const fs::path dir = fs::temp_directory_path() / ("tessera-api-threads-" + std::to_string(::getpid()));
+  fs::create_directories(dir);
+  const std::string path = (dir / "m.safetensors").string();
+  ExperimentConfig cfg = small();
+  cfg.train.threads = cfg.codebooks.threads = 512;  // as a model trained on a big machine stores it
+  {
+    Tokenizer t(cfg, 1);
+    t.init(11);
+    save_model(t, path, 1);
+  }
+  auto tok = Tokenizer::load(path, 2);
+  CHECK(tok->config().train.threads == 512);  // the stored config itself is kept
+  CHECK(tok->codebooks().config().threads == 2);
+  CHECK(tok->pool().size() == 2);
+  fs::remove_all(dir);
+}
+
 TEST_CASE("the library refuses bad requests with tessera::Error, never a crash") {
   SavedModel m;
   auto tok = Tokenizer::load(m.path, 1);

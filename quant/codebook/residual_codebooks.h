@@ -116,6 +116,7 @@ class ResidualCodebooks {
 
   // Statistics of the train passes since the last reset_usage().
   const UsageStats& usage() const { return usage_; }
+  UsageStats& usage() { return usage_; }  // for restoring a checkpoint's counts
   std::int64_t restarts(int s) const { return restarts_[s]; }
   int stale_codes(int s) const;  // codes of stage s unused for >= dead_after_steps steps now
   void reset_usage();

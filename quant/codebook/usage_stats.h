@@ -42,6 +42,10 @@ class UsageStats {
 
   StageUsage stage(int s) const;
   std::span<const std::int64_t> counts(int s) const;  // K counts of stage s
+  // Every count (stages x K) and every stage's vector total, for saving and restoring the
+  // statistics with a training checkpoint.
+  std::span<std::int64_t> all_counts() { return counts_; }
+  std::span<std::int64_t> all_vectors() { return vectors_; }
 
  private:
   int stages_ = 0, codes_ = 0;
