@@ -1,5 +1,5 @@
-// folder_lock.h — one writer per output folder: `tessera train` and `tessera encode` hold
-// FOLDER/<name> (".tessera.lock" by default) while they run.
+// folder_lock.h — one writer per output folder: `tessera train`, `encode`, `ladder` and
+// `report` hold FOLDER/<name> (".tessera.lock" by default) while they run.
 //   FolderLock lock(out, "train");   // throws if another live process holds it
 // The file holds "pid host command start-time" for the message a second writer gets. The
 // lock itself is flock(2) on that file, so the kernel releases it when the holder dies,

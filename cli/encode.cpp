@@ -89,8 +89,7 @@ int run_encode(const EncodeArgs& a) {
   const FolderLock lock(a.out, "encode",
                         shards == 1 ? ".tessera.lock"
                                     : ".tessera.shard-" + std::to_string(shard) + "-of-" + std::to_string(shards) + ".lock");
-  if (!lock.takeover().empty())
-    std::fprintf(stderr, "note: took over the lock of %s, which is no longer running\n", lock.takeover().c_str());
+  note_lock_takeover(lock);
   // After the lock has made --out, so --flat may lie inside it; a bad --flat path still
   // leaves nothing behind (the lock removes the folder it made).
   std::unique_ptr<AtomicFile> flat;

@@ -29,7 +29,8 @@ int run_ladder(const LadderArgs& a) {
   audio::SourceInfo src;
   const audio::Audio in = audio::load_audio_as(a.input, cfg.audio.sample_rate, norm, &src);
   print_input_warnings(src, a.input, cfg.audio);
-  fs::create_directories(a.out);
+  const FolderLock lock(a.out, "ladder");  // one writer: two ladders into one folder would mix their WAVs
+  note_lock_takeover(lock);
   std::error_code ec;
   for (const char* name : {"original.wav", "oracle.wav"})
     if (fs::exists(fs::path(a.out) / name, ec) && fs::equivalent(fs::path(a.out) / name, a.input, ec))

@@ -22,6 +22,11 @@ void check_output_path(const std::string& output, const std::vector<std::string>
   if (fs::is_directory(output, ec)) throw Error("cannot write '" + output + "': it is a folder");
 }
 
+void note_lock_takeover(const FolderLock& lock) {
+  if (!lock.takeover().empty())
+    std::fprintf(stderr, "note: took over the lock of %s, which is no longer running\n", lock.takeover().c_str());
+}
+
 void warn_about_level(const audio::SaveReport& rep, const std::string& path) {
   if (rep.clipped > 0)
     std::fprintf(stderr, "warning: %lld samples of '%s' were beyond full scale; the output was "

@@ -5,12 +5,16 @@
 
 #include "audio/audio_config.h"
 #include "audio/audio_io.h"
+#include "audio/folder_lock.h"
 #include "cli/command.h"
 
 namespace tessera::cli {
 
 // Refuses an output that is one of the inputs or whose folder does not exist.
 void check_output_path(const std::string& output, const std::vector<std::string>& inputs);
+
+// Prints a note when `lock` took over a lock file left by a process that died.
+void note_lock_takeover(const FolderLock& lock);
 
 // Warns on stderr when the output was peak-limited or would have clipped.
 void warn_about_level(const audio::SaveReport& rep, const std::string& path);

@@ -91,7 +91,8 @@ int run_report(const ReportArgs& a) {
   const std::vector<int> depths = parse_depths(a.depths, cfg.codebooks.stages);
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
 
-  fs::create_directories(a.out);
+  const FolderLock lock(a.out, "report");  // one writer: two reports into one folder would mix their files
+  note_lock_takeover(lock);
   std::error_code ec;
   for (const auto& f : files)
     if (fs::equivalent(fs::path(f.path).parent_path().empty() ? "." : fs::path(f.path).parent_path(), a.out, ec))

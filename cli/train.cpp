@@ -10,6 +10,7 @@
 #include "audio/error.h"
 #include "audio/folder_lock.h"
 #include "cli/command.h"
+#include "cli/output_path.h"
 #include "cli/progress.h"
 #include "quant/experiment_config.h"
 #include "quant/trainer.h"
@@ -38,8 +39,7 @@ int run_train(TrainArgs& a) {
   const quant::ExperimentConfig cfg = quant::load_experiment(a.config.config, sets);
   namespace fs = std::filesystem;
   const FolderLock lock(a.out, "train");
-  if (!lock.takeover().empty())
-    std::fprintf(stderr, "note: took over the lock of %s, which is no longer running\n", lock.takeover().c_str());
+  note_lock_takeover(lock);
   remove_stale_temporaries(a.out);
   std::error_code ec;
   if (!a.resume && (fs::exists(fs::path(a.out) / "model.safetensors", ec) ||

@@ -1,8 +1,8 @@
 #!/usr/bin/env bash
 # interrupt_resume.sh — a few random SIGKILLs of training and encoding
 # (tests/interrupt/kill_trials.sh: every file loads, the resumed model is byte-identical,
-# the encode rerun completes the corpus), then the folder lock: a second train or encode
-# into a folder in use is refused naming the holder, and the lock a killed run left is
+# the encode rerun completes the corpus), then the folder lock: a second train, encode,
+# ladder or report into a folder in use is refused naming the holder, and the lock a killed run left is
 # taken over with a note. Usage: interrupt_resume.sh TESSERA_BINARY SOURCE_DIR
 . "$(dirname "$0")/../cli_common.sh" "$@"
 
@@ -31,6 +31,9 @@ expect_refused() {  # expect_refused LOG COMMAND...: exit 1 and the holder named
 }
 expect_refused "$work/second.log" "$bin" train --out "$run" --corpus "$work/corpus" "${tiny_model_sets[@]}" --resume
 expect_refused "$work/encode.log" "$bin" encode --model "$run/model.safetensors" "$work/corpus" --out "$run"
+one_wav=$(ls "$work"/corpus/*.wav | head -1)
+expect_refused "$work/ladder.log" "$bin" ladder --model "$run/model.safetensors" "$one_wav" --out "$run"
+expect_refused "$work/report.log" "$bin" report --model "$run/model.safetensors" "$one_wav" --out "$run"
 kill -0 "$first" || fail "the first run died while the second was refused"
 
 # SIGKILL leaves .tessera.lock behind; the next run takes it over and continues.
