@@ -11,6 +11,7 @@
 #include "audio/file_list.h"
 #include "cli/command.h"
 #include "cli/file_workers.h"
+#include "cli/output_path.h"
 #include "cli/progress.h"
 #include "cli/rate_distortion.h"
 #include "quant/checkpoint.h"
@@ -34,6 +35,7 @@ int run_evaluate(const EvaluateArgs& a) {
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
   quant::UsageStats usage(cfg.codebooks.stages, cfg.codebooks.codes);
   std::vector<quant::Ladder> all(files.size());
+  std::vector<std::vector<std::string>> warnings(files.size());  // odd but usable input (cli/output_path.h)
   Progress bar("evaluate", double(files.size()), "files/s");
   double audio_s = 0;
   std::size_t n = 0;
@@ -41,13 +43,16 @@ int run_evaluate(const EvaluateArgs& a) {
       files.size(), plan.workers,
       [&](std::size_t i, int w) {
         try {
-          const audio::Audio in = audio::load_audio_as(files[i].path, cfg.audio.sample_rate, norm);
+          audio::SourceInfo src;
+          const audio::Audio in = audio::load_audio_as(files[i].path, cfg.audio.sample_rate, norm, &src);
+          warnings[i] = input_warnings(src, files[i].path, cfg.audio);
           all[i] = quant::depth_ladder(*models[std::size_t(w)], in.samples, {}, /*keep_audio=*/false);
         } catch (const Error& e) {
           throw Error(naming_file(files[i].path, e.what()));
         }
       },
       [&](std::size_t i) {
+        for (const std::string& m : warnings[i]) std::fprintf(stderr, "\rwarning: %s\n", m.c_str());
         usage.add_codes(all[i].codes);
         audio_s += all[i].seconds;
         char extra[64];

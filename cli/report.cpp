@@ -111,6 +111,7 @@ int run_report(const ReportArgs& a) {
   page.config_excerpt = config_excerpt(info.config_yaml);
   page.inputs.resize(files.size());
   std::vector<quant::Ladder> ladders(files.size());
+  std::vector<std::vector<std::string>> warnings(files.size());  // odd but usable input (cli/output_path.h)
   quant::UsageStats usage(cfg.codebooks.stages, cfg.codebooks.codes);
   Progress bar("report", double(files.size()), "files/s");
   std::size_t done = 0;
@@ -118,7 +119,9 @@ int run_report(const ReportArgs& a) {
   run_file_workers(
       files.size(), workers,
       [&](std::size_t i, int w) {
-        const audio::Audio in = audio::load_audio_as(files[i].path, sr, norm);
+        audio::SourceInfo src;
+        const audio::Audio in = audio::load_audio_as(files[i].path, sr, norm, &src);
+        warnings[i] = input_warnings(src, files[i].path, cfg.audio);
         quant::Ladder lad = quant::depth_ladder(*models[std::size_t(w)], in.samples, depths, /*keep_audio=*/true);
         const std::string stem = "input-" + std::to_string(i + 1);
         ReportInput& ri = page.inputs[i];
@@ -174,6 +177,7 @@ int run_report(const ReportArgs& a) {
         ladders[i] = std::move(lad);
       },
       [&](std::size_t i) {
+        for (const std::string& m : warnings[i]) std::fprintf(stderr, "\rwarning: %s\n", m.c_str());
         usage.add_codes(ladders[i].codes);
         bar.update(double(++done));
       });
