@@ -23,7 +23,7 @@ ThreadPool::~ThreadPool() {
 void ThreadPool::worker(int lane) {
   unsigned long seen = 0;
   for (;;) {
-    const std::function<void(int)>* task;
+    const FunctionRef<void(int)>* task;
     {
       std::unique_lock<std::mutex> lock(mu_);
       start_cv_.wait(lock, [&] { return stop_ || generation_ != seen; });
@@ -43,7 +43,7 @@ void ThreadPool::worker(int lane) {
   }
 }
 
-void ThreadPool::run(const std::function<void(int)>& fn) {
+void ThreadPool::run(FunctionRef<void(int)> fn) {
   if (workers_.empty()) {
     fn(0);
     return;
@@ -69,7 +69,7 @@ void ThreadPool::run(const std::function<void(int)>& fn) {
   if (err) std::rethrow_exception(err);
 }
 
-void ThreadPool::parallel_for(std::size_t n, const std::function<void(std::size_t, std::size_t)>& fn) {
+void ThreadPool::parallel_for(std::size_t n, FunctionRef<void(std::size_t, std::size_t)> fn) {
   const std::size_t lanes = std::size_t(size());
   run([&](int lane) {
     const std::size_t b = n * std::size_t(lane) / lanes, e = n * std::size_t(lane + 1) / lanes;

@@ -4,10 +4,11 @@
 #include <condition_variable>
 #include <cstddef>
 #include <exception>
-#include <functional>
 #include <mutex>
 #include <thread>
 #include <vector>
+
+#include "quant/function_ref.h"
 
 namespace tessera::quant {
 
@@ -23,13 +24,13 @@ class ThreadPool {
   int size() const { return int(workers_.size()) + 1; }
 
   // Runs fn(lane) for every lane 0..size()−1 and returns when all are done; the first
-  // exception thrown by a lane is rethrown here. Not reentrant (no run() inside fn).
+  // exception thrown by a lane is rethrown here. Allocates nothing (FunctionRef). Not reentrant (no run() inside fn).
   // Usage: pool.run([&](int lane) { work(lane); });
-  void run(const std::function<void(int)>& fn);
+  void run(FunctionRef<void(int)> fn);
 
   // Splits [0, n) into size() contiguous chunks (fixed by n and size()) and runs
   // fn(begin, end) for each on its own lane.
-  void parallel_for(std::size_t n, const std::function<void(std::size_t, std::size_t)>& fn);
+  void parallel_for(std::size_t n, FunctionRef<void(std::size_t, std::size_t)> fn);
 
  private:
   void worker(int lane);
@@ -37,7 +38,7 @@ class ThreadPool {
   std::vector<std::thread> workers_;
   std::mutex mu_;
   std::condition_variable start_cv_, done_cv_;
-  const std::function<void(int)>* task_ = nullptr;
+  const FunctionRef<void(int)>* task_ = nullptr;
   unsigned long generation_ = 0;
   int pending_ = 0;
   bool stop_ = false;

@@ -7,7 +7,6 @@
 #include <doctest/doctest.h>
 
 #include <algorithm>
-#include <atomic>
 #include <cmath>
 #include <cstdlib>
 #include <cstring>
@@ -15,6 +14,7 @@
 #include <vector>
 
 #include "audio/error.h"
+#include "count_allocations.h"
 
 using tessera::quant::CodebookConfig;
 using tessera::quant::draw_depth;
@@ -386,20 +386,8 @@ TEST_CASE("errors a user can cause name the bad value") {
                        tessera::Error);
 }
 
-#if defined(__GLIBC__) && !defined(__SANITIZE_ADDRESS__) && !defined(__SANITIZE_THREAD__)
-// Counts heap allocations of the whole program while `counting` is set. Interposes malloc
-// (operator new, Eigen and std::vector all end there) and forwards to glibc's own.
-extern "C" void* __libc_malloc(std::size_t);
-namespace {
-std::atomic<bool> counting{false};
-std::atomic<long> allocations{0};
-}  // namespace
-extern "C" void* malloc(std::size_t n) {
-  if (counting.load(std::memory_order_relaxed)) allocations.fetch_add(1, std::memory_order_relaxed);
-  return __libc_malloc(n);
-}
-
-TEST_CASE("a warmed-up training step allocates nothing") {
+#ifdef TESSERA_COUNTS_ALLOCATIONS
+TEST_CASE("a warmed-up codebook training step allocates nothing") {
   // The reference size (8 x 1024 x 128), a batch of 400 vectors, two search threads.
   for (auto learning : {CodebookConfig::Learning::ema, CodebookConfig::Learning::loss}) {
     CodebookConfig cfg;
@@ -418,11 +406,9 @@ TEST_CASE("a warmed-up training step allocates nothing") {
       rvq.encode(z, 8, codes);
     };
     step();
-    allocations = 0;
-    counting = true;
-    for (int i = 0; i < 3; ++i) step();
-    counting = false;
-    CHECK(allocations.load() == 0);
+    CHECK(tessera::testing::allocations_of([&] {
+            for (int i = 0; i < 3; ++i) step();
+          }) == 0);
     CHECK(rvq.restarts(0) > 0);
   }
 }
