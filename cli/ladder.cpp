@@ -1,5 +1,6 @@
 // ladder.cpp — `tessera ladder --model MODEL IN -o DIR`: one utterance at every depth,
 // beside the original and the oracle, as WAVs, ladder.json and a table.
+#include <algorithm>
 #include <cstdio>
 #include <filesystem>
 
@@ -29,12 +30,18 @@ int run_ladder(const LadderArgs& a) {
   audio::SourceInfo src;
   const audio::Audio in = audio::load_audio_as(a.input, cfg.audio.sample_rate, norm, &src);
   print_input_warnings(src, a.input, cfg.audio);
-  const FolderLock lock(a.out, "ladder");  // one writer: two ladders into one folder would mix their WAVs
-  note_lock_takeover(lock);
+  // Before the lock, which would make a file in the input's folder.
+  std::vector<std::string> outputs = {"original.wav", "oracle.wav", "ladder.json"};
+  for (int d = 1; d <= cfg.codebooks.stages; ++d) outputs.push_back("depth-" + std::to_string(d) + ".wav");
   std::error_code ec;
-  for (const char* name : {"original.wav", "oracle.wav"})
+  for (const std::string& name : outputs)
     if (fs::exists(fs::path(a.out) / name, ec) && fs::equivalent(fs::path(a.out) / name, a.input, ec))
       throw Error("refusing to write into '" + a.out + "': it would overwrite the input");
+  const FolderLock lock(a.out, "ladder");  // one writer: two ladders into one folder would mix their WAVs
+  note_lock_takeover(lock);
+  remove_stale_temporaries(a.out, [&](const std::string& target) {
+    return std::find(outputs.begin(), outputs.end(), fs::path(target).filename().string()) != outputs.end();
+  });
 
   Progress bar("ladder", cfg.codebooks.stages + 1, "syntheses/s");
   const quant::Ladder lad = quant::depth_ladder(*tok, in.samples, {}, /*keep_audio=*/true,

@@ -91,12 +91,16 @@ int run_report(const ReportArgs& a) {
   const std::vector<int> depths = parse_depths(a.depths, cfg.codebooks.stages);
   const double* norm = cfg.audio.normalize_input ? &cfg.audio.normalize_dbfs : nullptr;
 
-  const FolderLock lock(a.out, "report");  // one writer: two reports into one folder would mix their files
-  note_lock_takeover(lock);
-  std::error_code ec;
+  std::error_code ec;  // checked before the lock, which would make a file in the input's folder
   for (const auto& f : files)
     if (fs::equivalent(fs::path(f.path).parent_path().empty() ? "." : fs::path(f.path).parent_path(), a.out, ec))
       throw Error("refusing to write the report into '" + a.out + "': it holds the input '" + f.path + "'");
+  const FolderLock lock(a.out, "report");  // one writer: two reports into one folder would mix their files
+  note_lock_takeover(lock);
+  remove_stale_temporaries(a.out, [](const std::string& target) {  // what a killed report left: its own files only
+    const std::string name = fs::path(target).filename().string();
+    return name == "index.html" || name.rfind("input-", 0) == 0 || fs::path(name).extension() == ".svg";
+  });
 
   const int sr = cfg.audio.sample_rate;
   const double peak = cfg.audio.output_peak_dbfs;

@@ -1,7 +1,8 @@
 // function_ref.h — a non-owning reference to a callable, for "call this now" parameters.
 // Unlike std::function it never allocates (a lambda capturing more than two pointers
 // sends std::function to the heap), so passing work to the thread pool costs nothing.
-// The callable must outlive the call it is passed to, as a lambda argument always does.
+// The callable (a lambda or function object) must outlive the call it is passed to, as a
+// lambda argument always does.
 //   void each(FunctionRef<void(int)> fn);   each([&](int i) { sum += i; });
 #pragma once
 #include <type_traits>
@@ -20,7 +21,11 @@ class FunctionRef<R(Args...)> {
   FunctionRef(F&& f) noexcept  // NOLINT: implicit, like std::function
       : object_(const_cast<void*>(static_cast<const void*>(std::addressof(f)))),
         call_([](void* o, Args... args) -> R {
-          return (*static_cast<std::remove_reference_t<F>*>(o))(std::forward<Args>(args)...);
+          auto& f = *static_cast<std::remove_reference_t<F>*>(o);
+          if constexpr (std::is_void_v<R>)
+            f(std::forward<Args>(args)...);  // a result, if any, is dropped (as std::function does)
+          else
+            return f(std::forward<Args>(args)...);
         }) {}
 
   R operator()(Args... args) const { return call_(object_, std::forward<Args>(args)...); }

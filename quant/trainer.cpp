@@ -326,6 +326,12 @@ ResumeReport Trainer::resume() {
     UsageStats& usage = rvq.usage();
     r.read_into<std::int64_t>("log_window.code_counts", {c.stages, c.codes}, usage.all_counts().data());
     r.read_into<std::int64_t>("log_window.vectors", {c.stages}, usage.all_vectors().data());
+    for (int s = 0; s < c.stages; ++s) {  // each stage's counts must add up to its vectors
+      std::int64_t sum = 0;
+      for (std::int64_t n : usage.counts(s)) sum = n < 0 || sum < 0 ? -1 : sum + n;
+      if (sum != usage.all_vectors()[std::size_t(s)])
+        throw Error(state_path() + ": damaged code counts of stage " + std::to_string(s + 1));
+    }
   }
 
   ResumeReport rep;

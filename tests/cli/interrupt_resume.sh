@@ -47,6 +47,22 @@ grep -q "note: took over the lock of tessera train, pid $first on host .*, which
 [ ! -e "$run/.tessera.lock" ] || fail "the lock file outlived its run"
 ls "$run" | grep -q '\.tmp-' && fail "temporary files left: $(ls "$run")"
 
+# ladder and report remove the temporary files a killed ladder or report left (a dead
+# pid), and nothing else: a sharded encode's temporaries in the same folder stay.
+true & dead=$!
+wait "$dead"
+mkdir -p "$work/pages"
+: >"$work/pages/index.html.tmp-$dead"
+: >"$work/pages/depth-1.wav.tmp-$dead"
+: >"$work/pages/a.npy.tmp-$dead"
+"$bin" report --model "$run/model.safetensors" "$one_wav" --out "$work/pages" >"$work/pages.log" 2>&1 ||
+  fail "report into a folder with stale temporaries: $(cat "$work/pages.log")"
+[ ! -e "$work/pages/index.html.tmp-$dead" ] || fail "report left a killed report's temporary file"
+"$bin" ladder --model "$run/model.safetensors" "$one_wav" --out "$work/pages" >"$work/ladder2.log" 2>&1 ||
+  fail "ladder into a folder with stale temporaries: $(cat "$work/ladder2.log")"
+[ ! -e "$work/pages/depth-1.wav.tmp-$dead" ] || fail "ladder left a killed ladder's temporary file"
+[ -e "$work/pages/a.npy.tmp-$dead" ] || fail "a temporary file of another command was removed"
+
 # A run that fails before writing anything leaves no folder behind.
 "$bin" train --out "$work/none" --corpus "$work/no-such-corpus" "${tiny_model_sets[@]}" >/dev/null 2>&1 &&
   fail "training on a missing corpus succeeded"
