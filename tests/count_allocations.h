@@ -45,27 +45,27 @@ long allocations_of(Fn&& fn) {
 }  // namespace tessera::testing
 
 extern "C" {
-void* malloc(std::size_t n) {
+void* malloc(std::size_t n) noexcept {
   tessera::testing::count_allocation();
   return __libc_malloc(n);
 }
-void* calloc(std::size_t count, std::size_t n) {
+void* calloc(std::size_t count, std::size_t n) noexcept {
   tessera::testing::count_allocation();
   return __libc_calloc(count, n);
 }
-void* realloc(void* p, std::size_t n) {
+void* realloc(void* p, std::size_t n) noexcept {
   tessera::testing::count_allocation();
   return __libc_realloc(p, n);
 }
-void* aligned_alloc(std::size_t alignment, std::size_t n) {
+void* aligned_alloc(std::size_t alignment, std::size_t n) noexcept {
   tessera::testing::count_allocation();
   return __libc_memalign(alignment, n);
 }
-void* memalign(std::size_t alignment, std::size_t n) {
+void* memalign(std::size_t alignment, std::size_t n) noexcept {
   tessera::testing::count_allocation();
   return __libc_memalign(alignment, n);
 }
-int posix_memalign(void** out, std::size_t alignment, std::size_t n) {
+int posix_memalign(void** out, std::size_t alignment, std::size_t n) noexcept {
   tessera::testing::count_allocation();
   // POSIX: a power of two and a multiple of sizeof(void*), else EINVAL.
   if (alignment % sizeof(void*) != 0 || (alignment & (alignment - 1)) != 0) return EINVAL;
