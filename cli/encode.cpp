@@ -189,9 +189,9 @@ int run_encode(const EncodeArgs& a) {
       },
       [&](std::size_t i) {
         Result& r = results[i];
-        for (const std::string& m : r.warnings) std::fprintf(stderr, "\rwarning: %s\n", m.c_str());
+        for (const std::string& m : r.warnings) bar.message("warning: " + m);
         if (!r.error.empty()) {
-          std::fprintf(stderr, "\rskipped   %s\n", r.error.c_str());
+          bar.message("skipped   " + r.error);
           failed.push_back(r.error);
           bar.update(double(++n), status());
           return;

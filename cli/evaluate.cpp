@@ -52,7 +52,7 @@ int run_evaluate(const EvaluateArgs& a) {
         }
       },
       [&](std::size_t i) {
-        for (const std::string& m : warnings[i]) std::fprintf(stderr, "\rwarning: %s\n", m.c_str());
+        for (const std::string& m : warnings[i]) bar.message("warning: " + m);
         usage.add_codes(all[i].codes);
         audio_s += all[i].seconds;
         char extra[64];

@@ -34,6 +34,12 @@ void Progress::update(double done, const std::string& extra) {
 
 void Progress::finish(const std::string& extra) { draw(total_, extra, true); }
 
+void Progress::message(const std::string& line) {
+  std::fprintf(stderr, "%s%s\n", tty_ ? "\r\033[K" : "", line.c_str());
+  last_draw_ = start_ - std::chrono::seconds(1);  // redraw at the next update
+  std::fflush(stderr);
+}
+
 void Progress::draw(double done, const std::string& extra, bool final) {
   const double t = elapsed();
   const double rate = t > 0 ? done / t : 0;

@@ -13,6 +13,9 @@ class Progress {
   Progress(std::string label, double total, std::string unit);
   void update(double done, const std::string& extra = "");
   void finish(const std::string& extra = "");
+  // Prints one line above the status line ("warning: ...", "skipped ..."), clearing what
+  // the status line showed; the next update() redraws it below.
+  void message(const std::string& line);
   double elapsed() const;
 
  private:

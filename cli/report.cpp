@@ -181,7 +181,7 @@ int run_report(const ReportArgs& a) {
         ladders[i] = std::move(lad);
       },
       [&](std::size_t i) {
-        for (const std::string& m : warnings[i]) std::fprintf(stderr, "\rwarning: %s\n", m.c_str());
+        for (const std::string& m : warnings[i]) bar.message("warning: " + m);
         usage.add_codes(ladders[i].codes);
         bar.update(double(++done));
       });
