@@ -24,7 +24,8 @@ class ThreadPool {
   int size() const { return int(workers_.size()) + 1; }
 
   // Runs fn(lane) for every lane 0..size()−1 and returns when all are done; the first
-  // exception thrown by a lane is rethrown here. Allocates nothing (FunctionRef). Not reentrant (no run() inside fn).
+  // exception thrown by a lane is rethrown here. Allocates nothing (FunctionRef). Not
+  // reentrant (no run() inside fn).
   // Usage: pool.run([&](int lane) { work(lane); });
   void run(FunctionRef<void(int)> fn);
 

@@ -2,8 +2,8 @@
 # interrupt_resume.sh — a few random SIGKILLs of training and encoding
 # (tests/interrupt/kill_trials.sh: every file loads, the resumed model is byte-identical,
 # the encode rerun completes the corpus), then the folder lock: a second train, encode,
-# ladder or report into a folder in use is refused naming the holder, and the lock a killed run left is
-# taken over with a note. Usage: interrupt_resume.sh TESSERA_BINARY SOURCE_DIR
+# ladder or report into a folder in use is refused naming the holder, and the lock a
+# killed run left is taken over with a note. Usage: interrupt_resume.sh TESSERA_BINARY SOURCE_DIR
 . "$(dirname "$0")/../cli_common.sh" "$@"
 
 bash "$src/tests/interrupt/kill_trials.sh" "$bin" "$src" 3 2 1 || fail "kill trials"
